@@ -1,0 +1,9 @@
+//! restvolt: state of charge of lead-acid batteries from rest voltage and
+//! hydrometer readings, with an honest uncertainty, plausibility flags and a
+//! fleet diagnosis.
+//!
+//! Data flows one way: input → [`units`] → electrolyte/profile → correct →
+//! fleet → rules → report. No module reaches back up that chain.
+#![warn(missing_docs)]
+
+pub mod units;

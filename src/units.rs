@@ -1,0 +1,363 @@
+//! Physical quantities as types, and the parsers for how people type them.
+//!
+//! Every value that crosses a module boundary carries its unit in its type
+//! (`Volts`, `Celsius`, `SocPercent`, …) so that a cell voltage can never be
+//! passed where a unit voltage or a specific gravity is expected by accident
+//! of argument order. The wrapped `f64` is public: arithmetic inside a module is
+//! plain, the type is the label at the seam.
+
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+macro_rules! quantity {
+    ($(#[$m:meta])* $name:ident, $unit:expr) => {
+        $(#[$m])*
+        #[derive(Clone, Copy, Debug, PartialEq, PartialOrd, Default, Serialize, Deserialize)]
+        #[serde(transparent)]
+        pub struct $name(pub f64);
+
+        impl $name {
+            /// The bare number, in the unit the type names.
+            pub fn value(self) -> f64 {
+                self.0
+            }
+            /// True when the number is neither NaN nor infinite.
+            pub fn is_finite(self) -> bool {
+                self.0.is_finite()
+            }
+        }
+
+        impl fmt::Display for $name {
+            fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                match f.precision() {
+                    Some(p) => write!(f, "{:.*}{}", p, self.0, $unit),
+                    None => write!(f, "{}{}", self.0, $unit),
+                }
+            }
+        }
+    };
+}
+
+quantity!(
+    /// Electric potential difference in volts.
+    Volts, " V");
+quantity!(
+    /// Electric potential difference in millivolts.
+    Millivolts, " mV");
+quantity!(
+    /// Temperature in degrees Celsius.
+    Celsius, " °C");
+quantity!(
+    /// A temperature difference in kelvin (equal to a difference in °C).
+    Kelvins, " K");
+quantity!(
+    /// Elapsed time in hours.
+    Hours, " h");
+quantity!(
+    /// State of charge in percent of full charge (0–100).
+    SocPercent, " %");
+quantity!(
+    /// Specific gravity of the electrolyte, referred to water (dimensionless ratio).
+    /// Unless a name says otherwise it is SG 25/25: the solution at 25 °C over water at 25 °C.
+    SpecificGravity, "");
+quantity!(
+    /// Molality in mol of H2SO4 per kg of water.
+    MolPerKg, " mol/kg");
+quantity!(
+    /// Mass fraction of solute, 0–1 (kg H2SO4 per kg solution).
+    MassFraction, "");
+quantity!(
+    /// Density in kg/m³.
+    KgPerM3, " kg/m³");
+quantity!(
+    /// A temperature coefficient in millivolts per kelvin.
+    MillivoltsPerKelvin, " mV/K");
+quantity!(
+    /// Amperes.
+    Amperes, " A");
+quantity!(
+    /// Ampere-hours of capacity.
+    AmpHours, " Ah");
+quantity!(
+    /// Milliohms.
+    Milliohms, " mΩ");
+
+impl Volts {
+    /// The same potential in millivolts.
+    pub fn to_millivolts(self) -> Millivolts {
+        Millivolts(self.0 * 1000.0)
+    }
+}
+
+impl Millivolts {
+    /// The same potential in volts.
+    pub fn to_volts(self) -> Volts {
+        Volts(self.0 / 1000.0)
+    }
+}
+
+impl Celsius {
+    /// Convert from degrees Fahrenheit.
+    pub fn from_fahrenheit(deg_f: f64) -> Celsius {
+        Celsius((deg_f - 32.0) * 5.0 / 9.0)
+    }
+    /// The same temperature in degrees Fahrenheit.
+    pub fn to_fahrenheit(self) -> f64 {
+        self.0 * 9.0 / 5.0 + 32.0
+    }
+    /// Thermodynamic temperature in kelvin.
+    pub fn to_kelvin(self) -> f64 {
+        self.0 + 273.15
+    }
+    /// Difference `self − other`.
+    pub fn minus(self, other: Celsius) -> Kelvins {
+        Kelvins(self.0 - other.0)
+    }
+}
+
+impl Hours {
+    /// From minutes.
+    pub fn from_minutes(minutes: f64) -> Hours {
+        Hours(minutes / 60.0)
+    }
+    /// In minutes.
+    pub fn to_minutes(self) -> f64 {
+        self.0 * 60.0
+    }
+    /// As a chrono duration (rounded to the second).
+    pub fn to_duration(self) -> chrono::Duration {
+        chrono::Duration::seconds((self.0 * 3600.0).round() as i64)
+    }
+}
+
+/// A value typed on the command line or in a file could not be read.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum UnitError {
+    /// A temperature was given as a bare number.
+    #[error("temperature '{0}' has no unit: write it like -4C, 25F or 12.5C")]
+    TemperatureWithoutUnit(String),
+    /// A temperature could not be read at all.
+    #[error("temperature '{0}' is not understood: expected a number followed by C or F, like -4C or 25F")]
+    BadTemperature(String),
+    /// A duration could not be read.
+    #[error("rest time '{0}' is not understood: expected a number with m, h or d (40m, 6h, 2d, 1h30m) or 'unknown'")]
+    BadDuration(String),
+    /// A duration was negative.
+    #[error("rest time '{0}' is negative: a rest time counts from the end of the last charge or discharge")]
+    NegativeDuration(String),
+    /// A number could not be read.
+    #[error("'{value}' is not a number (expected {expected})")]
+    BadNumber {
+        /// What was typed.
+        value: String,
+        /// What was expected.
+        expected: String,
+    },
+    /// A meter accuracy could not be read.
+    #[error("meter accuracy '{0}' is not understood: expected PERCENT%+COUNTS, like 0.5%+2")]
+    BadMeter(String),
+}
+
+/// Read a decimal number, accepting a decimal comma (`12,41`) as field data
+/// from spreadsheets often has, and the Unicode minus sign.
+pub fn parse_decimal(raw: &str, expected: &str) -> Result<f64, UnitError> {
+    let text = raw.trim().replace('\u{2212}', "-");
+    let normalised = if text.contains(',') && !text.contains('.') && text.matches(',').count() == 1 {
+        text.replace(',', ".")
+    } else {
+        text.clone()
+    };
+    let bad = || UnitError::BadNumber {
+        value: raw.trim().to_string(),
+        expected: expected.to_string(),
+    };
+    // Rust accepts "inf", "NaN" and "infinity": field data never means those.
+    if normalised.is_empty()
+        || normalised
+            .chars()
+            .any(|c| !(c.is_ascii_digit() || matches!(c, '.' | '-' | '+' | 'e' | 'E')))
+    {
+        return Err(bad());
+    }
+    let value: f64 = normalised.parse().map_err(|_| bad())?;
+    if value.is_finite() {
+        Ok(value)
+    } else {
+        Err(bad())
+    }
+}
+
+/// Parse a temperature with its unit: `-4C`, `−4 °C`, `25F`, `77°F`.
+/// A bare number is refused, because 25 could be either.
+pub fn parse_temperature(raw: &str) -> Result<Celsius, UnitError> {
+    let text = raw.trim().replace('\u{2212}', "-").replace('°', "");
+    let text = text.trim();
+    let (number, unit) = match text.char_indices().last() {
+        Some((i, c)) if c.is_ascii_alphabetic() => (&text[..i], c.to_ascii_uppercase()),
+        Some(_) => {
+            return if parse_decimal(text, "a temperature").is_ok() {
+                Err(UnitError::TemperatureWithoutUnit(raw.trim().to_string()))
+            } else {
+                Err(UnitError::BadTemperature(raw.trim().to_string()))
+            }
+        }
+        None => return Err(UnitError::BadTemperature(raw.to_string())),
+    };
+    let value = parse_decimal(number.trim(), "a temperature")
+        .map_err(|_| UnitError::BadTemperature(raw.trim().to_string()))?;
+    match unit {
+        'C' => Ok(Celsius(value)),
+        'F' => Ok(Celsius::from_fahrenheit(value)),
+        _ => Err(UnitError::BadTemperature(raw.trim().to_string())),
+    }
+}
+
+/// Parse a rest duration: `40m`, `6h`, `2d`, `1h30m`, `90min`, `1.5h`, or
+/// `unknown` (returns `None`). A bare number is refused.
+pub fn parse_duration(raw: &str) -> Result<Option<Hours>, UnitError> {
+    let text = raw.trim().to_ascii_lowercase();
+    if text == "unknown" || text == "?" {
+        return Ok(None);
+    }
+    if text.starts_with('-') || text.starts_with('\u{2212}') {
+        return Err(UnitError::NegativeDuration(raw.trim().to_string()));
+    }
+    let bad = || UnitError::BadDuration(raw.trim().to_string());
+    let mut total_hours = 0.0;
+    let mut number = String::new();
+    let mut chars = text.chars().peekable();
+    let mut parts = 0;
+    while let Some(c) = chars.next() {
+        if c.is_ascii_digit() || c == '.' || c == ',' {
+            number.push(if c == ',' { '.' } else { c });
+            continue;
+        }
+        if c.is_whitespace() {
+            continue;
+        }
+        let mut word = String::from(c);
+        while let Some(&n) = chars.peek() {
+            if n.is_ascii_alphabetic() {
+                word.push(n);
+                chars.next();
+            } else {
+                break;
+            }
+        }
+        let value: f64 = number.parse().map_err(|_| bad())?;
+        number.clear();
+        let factor = match word.as_str() {
+            "s" | "sec" | "secs" => 1.0 / 3600.0,
+            "m" | "min" | "mins" | "minute" | "minutes" => 1.0 / 60.0,
+            "h" | "hr" | "hrs" | "hour" | "hours" => 1.0,
+            "d" | "day" | "days" => 24.0,
+            _ => return Err(bad()),
+        };
+        total_hours += value * factor;
+        parts += 1;
+    }
+    if !number.is_empty() || parts == 0 || !total_hours.is_finite() {
+        return Err(bad());
+    }
+    Ok(Some(Hours(total_hours)))
+}
+
+/// A handheld meter's stated DC-volts accuracy: ±(percent of reading + counts of the last digit).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct MeterAccuracy {
+    /// Percent-of-reading term.
+    pub percent_of_reading: f64,
+    /// Number of counts of the display resolution.
+    pub counts: f64,
+}
+
+impl MeterAccuracy {
+    /// The half-width of the stated accuracy band for a reading, in volts.
+    pub fn half_width(self, reading: Volts, resolution: Volts) -> Volts {
+        Volts(reading.0.abs() * self.percent_of_reading / 100.0 + self.counts * resolution.0)
+    }
+}
+
+impl fmt::Display for MeterAccuracy {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "±({}% + {} counts)", self.percent_of_reading, self.counts)
+    }
+}
+
+/// Parse `0.5%+2` (percent of reading plus counts); `0.5%` alone means no counts.
+pub fn parse_meter(raw: &str) -> Result<MeterAccuracy, UnitError> {
+    let text: String = raw.chars().filter(|c| !c.is_whitespace()).collect();
+    let bad = || UnitError::BadMeter(raw.trim().to_string());
+    let (pct, counts) = match text.split_once('%') {
+        Some((p, rest)) => {
+            let rest = rest.trim_start_matches('+');
+            let counts = if rest.is_empty() {
+                0.0
+            } else {
+                parse_decimal(rest, "counts").map_err(|_| bad())?
+            };
+            (parse_decimal(p, "percent").map_err(|_| bad())?, counts)
+        }
+        None => return Err(bad()),
+    };
+    if pct < 0.0 || counts < 0.0 || pct > 20.0 {
+        return Err(bad());
+    }
+    Ok(MeterAccuracy {
+        percent_of_reading: pct,
+        counts,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn temperatures_need_their_unit() {
+        assert_relative_eq!(parse_temperature("-4C").unwrap().0, -4.0);
+        assert_relative_eq!(parse_temperature("−4 °C").unwrap().0, -4.0);
+        // 32 °F is the freezing point of water (definition of the scale).
+        assert_relative_eq!(parse_temperature("32F").unwrap().0, 0.0);
+        assert_relative_eq!(parse_temperature("80°F").unwrap().0, 26.666_666, epsilon = 1e-5);
+        assert_eq!(
+            parse_temperature("25"),
+            Err(UnitError::TemperatureWithoutUnit("25".into()))
+        );
+        assert!(parse_temperature("warm").is_err());
+        assert!(parse_temperature("12K").is_err());
+    }
+
+    #[test]
+    fn durations() {
+        assert_relative_eq!(parse_duration("40m").unwrap().unwrap().0, 40.0 / 60.0);
+        assert_relative_eq!(parse_duration("6h").unwrap().unwrap().0, 6.0);
+        assert_relative_eq!(parse_duration("2d").unwrap().unwrap().0, 48.0);
+        assert_relative_eq!(parse_duration("1h30m").unwrap().unwrap().0, 1.5);
+        assert_eq!(parse_duration("unknown").unwrap(), None);
+        assert!(parse_duration("6").is_err());
+        assert!(parse_duration("-2h").is_err());
+        assert!(parse_duration("h").is_err());
+        assert!(parse_duration("3 weeks").is_err());
+    }
+
+    #[test]
+    fn decimals_accept_a_comma_and_refuse_nan() {
+        assert_relative_eq!(parse_decimal("12,41", "volts").unwrap(), 12.41);
+        assert_relative_eq!(parse_decimal(" 12.41 ", "volts").unwrap(), 12.41);
+        assert!(parse_decimal("NaN", "volts").is_err());
+        assert!(parse_decimal("inf", "volts").is_err());
+        assert!(parse_decimal("1,234,5", "volts").is_err());
+        assert!(parse_decimal("", "volts").is_err());
+    }
+
+    #[test]
+    fn meter_accuracy() {
+        let m = parse_meter("0.5%+2").unwrap();
+        // REFERENCES §7: ±(0.5 % + 2 counts at 10 mV) at 12.6 V is ±0.083 V.
+        assert_relative_eq!(m.half_width(Volts(12.6), Volts(0.01)).0, 0.083, epsilon = 1e-9);
+        assert!(parse_meter("0.5").is_err());
+        assert_eq!(parse_meter("1%").unwrap().counts, 0.0);
+    }
+}
