@@ -8,3 +8,4 @@
 
 pub mod safety;
 pub mod units;
+pub mod ventilation;
