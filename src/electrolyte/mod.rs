@@ -234,4 +234,50 @@ mod tests {
         let e = ElectrolyteError::SgOutOfRange { sg: 1.5 };
         assert!(e.to_string().contains("1.5") && e.to_string().contains("1.400"));
     }
+
+    mod never_nan {
+        use super::super::*;
+        use crate::units::{Celsius, MassFraction, MolPerKg};
+        use proptest::prelude::*;
+
+        proptest! {
+            // Property (issue): over inputs well beyond every range, each call
+            // either refuses or returns a finite number; none panics.
+            #[test]
+            fn every_ok_is_finite(
+                t in -100.0f64..150.0,
+                t2 in -100.0f64..150.0,
+                sg in 0.8f64..1.6,
+                w in -0.2f64..1.2,
+                m in -1.0f64..50.0,
+            ) {
+                let temp = Celsius(t);
+                let sgv = SpecificGravity(sg);
+                if let Ok(c) = water_density(temp) { prop_assert!(c.value.0.is_finite()); }
+                if let Ok(c) = solution_density(MassFraction(w), temp) { prop_assert!(c.value.0.is_finite()); }
+                if let Ok(c) = specific_gravity(MassFraction(w), temp, Celsius(t2)) { prop_assert!(c.value.0.is_finite()); }
+                if let Ok(v) = sg25_from_mass_fraction(MassFraction(w)) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = mass_fraction_from_sg25(sgv) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = molality_from_mass_fraction(MassFraction(w)) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = mass_fraction_from_molality(MolPerKg(m)) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = molality_from_sg25(sgv) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = cell_ocv_25c(MolPerKg(m)) { prop_assert!(v.0.is_finite()); }
+                if let Ok(v) = ocv_temperature_coefficient(MolPerKg(m)) { prop_assert!(v.0.is_finite()); }
+                if let Ok(c) = cell_ocv(MolPerKg(m), temp) { prop_assert!(c.value.0.is_finite()); }
+                if let Ok(v) = cell_ocv_25c_from_sg25(sgv) { prop_assert!(v.0.is_finite()); }
+                for rule in [HydrometerRule::Step167, HydrometerRule::Army10F, HydrometerRule::DensityModel] {
+                    if let Ok(c) = correct_to_25c(sgv, temp, rule) { prop_assert!(c.value.0.is_finite()); }
+                }
+                if let Ok(v) = freezing_point(sgv) { prop_assert!(v.0.is_finite()); }
+                // Refusals follow the stated limits.
+                if !(TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&t) {
+                    prop_assert!(water_density(temp).is_err());
+                }
+                if !(SG_MIN..=SG_MAX).contains(&sg) {
+                    prop_assert!(mass_fraction_from_sg25(sgv).is_err());
+                    prop_assert!(freezing_point(sgv).is_err());
+                }
+            }
+        }
+    }
 }
