@@ -6,6 +6,8 @@
 //! fleet → rules → report. No module reaches back up that chain.
 #![warn(missing_docs)]
 
+<<<<<<< HEAD
+pub mod electrolyte;
 pub mod safety;
 pub mod units;
 pub mod ventilation;
