@@ -6,8 +6,9 @@
 //! fleet → rules → report. No module reaches back up that chain.
 #![warn(missing_docs)]
 
-<<<<<<< HEAD
 pub mod electrolyte;
+pub mod profile;
+pub mod rules;
 pub mod safety;
 pub mod units;
 pub mod ventilation;

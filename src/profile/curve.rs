@@ -1,0 +1,319 @@
+//! A monotone rest-voltage curve: state of charge ↔ open-circuit voltage per cell at 25 °C.
+//!
+//! The curve is a piecewise cubic Hermite interpolant with Fritsch–Carlson
+//! monotone tangents (F. N. Fritsch and R. E. Carlson, "Monotone piecewise cubic
+//! interpolation", SIAM J. Numer. Anal. 17(2), 1980). Each Hermite segment is
+//! written as a cubic Bézier segment for the `splines` crate (control points at
+//! p ± m·h/3), so evaluation is the crate's. Because the interpolant is strictly
+//! increasing, the inverse (voltage → state of charge) is unique; it is found
+//! by bisection to well below a microvolt.
+
+use crate::units::{SocPercent, Volts};
+use splines::{Interpolation, Key, Spline};
+
+/// Which end of the curve a reading fell beyond.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum CurveEnd {
+    /// Below the 0 % point.
+    BelowEmpty,
+    /// Above the 100 % point.
+    AboveFull,
+}
+
+/// Result of looking a voltage up on the curve.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct SocLookup {
+    /// State of charge, clamped to the curve's ends.
+    pub soc: SocPercent,
+    /// Set when the voltage lay beyond an end of the curve: which end, and by how much per cell.
+    pub beyond: Option<(CurveEnd, Volts)>,
+}
+
+/// A strictly increasing curve of OCV per cell at 25 °C against state of charge.
+#[derive(Clone, Debug)]
+pub struct MonotoneCurve {
+    soc_percent: Vec<f64>,
+    volts_per_cell: Vec<f64>,
+    spline: Spline<f64, f64>,
+}
+
+/// Why a set of points cannot make a curve.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum CurveError {
+    /// Fewer than two points.
+    #[error("a curve needs at least two points, found {0}")]
+    TooFewPoints(usize),
+    /// A number is NaN or infinite.
+    #[error("point {index} is not a finite number")]
+    NotFinite {
+        /// Index of the point (0-based).
+        index: usize,
+    },
+    /// State of charge outside 0–100.
+    #[error("point {index}: state of charge {soc_percent} is outside 0–100 %")]
+    SocOutOfRange {
+        /// Index of the point.
+        index: usize,
+        /// The value.
+        soc_percent: f64,
+    },
+    /// Not strictly increasing.
+    #[error("point {index}: {axis} must increase strictly from the previous point ({previous} then {value})")]
+    NotIncreasing {
+        /// Index of the point.
+        index: usize,
+        /// Which axis.
+        axis: &'static str,
+        /// Previous value.
+        previous: f64,
+        /// This value.
+        value: f64,
+    },
+}
+
+impl MonotoneCurve {
+    /// Build a curve from `(soc_percent, volts_per_cell)` points, which must be
+    /// finite, within 0–100 %, and strictly increasing in both coordinates.
+    pub fn new(points: &[(SocPercent, Volts)]) -> Result<MonotoneCurve, CurveError> {
+        if points.len() < 2 {
+            return Err(CurveError::TooFewPoints(points.len()));
+        }
+        for (index, (s, v)) in points.iter().enumerate() {
+            if !s.is_finite() || !v.is_finite() {
+                return Err(CurveError::NotFinite { index });
+            }
+            if !(0.0..=100.0).contains(&s.0) {
+                return Err(CurveError::SocOutOfRange {
+                    index,
+                    soc_percent: s.0,
+                });
+            }
+            if index > 0 {
+                let (ps, pv) = points[index - 1];
+                if s.0 <= ps.0 {
+                    return Err(CurveError::NotIncreasing {
+                        index,
+                        axis: "state of charge",
+                        previous: ps.0,
+                        value: s.0,
+                    });
+                }
+                if v.0 <= pv.0 {
+                    return Err(CurveError::NotIncreasing {
+                        index,
+                        axis: "voltage",
+                        previous: pv.0,
+                        value: v.0,
+                    });
+                }
+            }
+        }
+        let xs: Vec<f64> = points.iter().map(|p| p.0 .0).collect();
+        let ys: Vec<f64> = points.iter().map(|p| p.1 .0).collect();
+        let tangents = fritsch_carlson_tangents(&xs, &ys);
+        let n = xs.len();
+        let keys = (0..n)
+            .map(|i| {
+                let h_in = if i > 0 { xs[i] - xs[i - 1] } else { 0.0 };
+                let h_out = if i + 1 < n { xs[i + 1] - xs[i] } else { 0.0 };
+                let control_in = ys[i] - tangents[i] * h_in / 3.0;
+                let control_out = ys[i] + tangents[i] * h_out / 3.0;
+                Key::new(
+                    xs[i],
+                    ys[i],
+                    Interpolation::StrokeBezier(control_in, control_out),
+                )
+            })
+            .collect();
+        Ok(MonotoneCurve {
+            soc_percent: xs,
+            volts_per_cell: ys,
+            spline: Spline::from_vec(keys),
+        })
+    }
+
+    /// The curve's defining points.
+    pub fn points(&self) -> Vec<(SocPercent, Volts)> {
+        self.soc_percent
+            .iter()
+            .zip(&self.volts_per_cell)
+            .map(|(s, v)| (SocPercent(*s), Volts(*v)))
+            .collect()
+    }
+
+    /// Lowest state of charge the curve covers.
+    pub fn soc_min(&self) -> SocPercent {
+        SocPercent(self.soc_percent[0])
+    }
+
+    /// Highest state of charge the curve covers.
+    pub fn soc_max(&self) -> SocPercent {
+        SocPercent(self.soc_percent[self.soc_percent.len() - 1])
+    }
+
+    /// OCV per cell at the lowest point.
+    pub fn volts_min(&self) -> Volts {
+        Volts(self.volts_per_cell[0])
+    }
+
+    /// OCV per cell at the highest point.
+    pub fn volts_max(&self) -> Volts {
+        Volts(self.volts_per_cell[self.volts_per_cell.len() - 1])
+    }
+
+    /// OCV per cell at a state of charge (clamped to the curve's range).
+    pub fn volts_at(&self, soc: SocPercent) -> Volts {
+        let lo = self.soc_percent[0];
+        let hi = self.soc_percent[self.soc_percent.len() - 1];
+        let s = if soc.0.is_nan() {
+            lo
+        } else {
+            soc.0.clamp(lo, hi)
+        };
+        // clamped_sample only fails on an empty spline, which `new` rules out.
+        Volts(
+            self.spline
+                .clamped_sample(s)
+                .unwrap_or(self.volts_per_cell[0]),
+        )
+    }
+
+    /// State of charge for an OCV per cell at 25 °C; beyond the ends it clamps
+    /// and says by how much the voltage lay outside.
+    pub fn soc_at(&self, volts_per_cell: Volts) -> SocLookup {
+        let v = volts_per_cell.0;
+        let (v_lo, v_hi) = (self.volts_min().0, self.volts_max().0);
+        if v.is_nan() || v <= v_lo {
+            return SocLookup {
+                soc: self.soc_min(),
+                beyond: (v < v_lo).then_some((CurveEnd::BelowEmpty, Volts(v_lo - v))),
+            };
+        }
+        if v >= v_hi {
+            return SocLookup {
+                soc: self.soc_max(),
+                beyond: (v > v_hi).then_some((CurveEnd::AboveFull, Volts(v - v_hi))),
+            };
+        }
+        // Bisection on a strictly increasing function: 60 halvings of ≤ 100 %
+        // reach 1e-16 %, far below any meaningful resolution.
+        let (mut lo, mut hi) = (self.soc_min().0, self.soc_max().0);
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if self.volts_at(SocPercent(mid)).0 < v {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        SocLookup {
+            soc: SocPercent(0.5 * (lo + hi)),
+            beyond: None,
+        }
+    }
+
+    /// Slope dV/dSOC in volts per cell per percent at a state of charge (central difference).
+    pub fn slope_volts_per_percent(&self, soc: SocPercent) -> f64 {
+        let h = 0.01;
+        let a = (soc.0 - h).max(self.soc_min().0);
+        let b = (soc.0 + h).min(self.soc_max().0);
+        (self.volts_at(SocPercent(b)).0 - self.volts_at(SocPercent(a)).0) / (b - a)
+    }
+}
+
+/// Fritsch–Carlson monotone tangents for strictly increasing data.
+fn fritsch_carlson_tangents(xs: &[f64], ys: &[f64]) -> Vec<f64> {
+    let n = xs.len();
+    let secants: Vec<f64> = (0..n - 1)
+        .map(|i| (ys[i + 1] - ys[i]) / (xs[i + 1] - xs[i]))
+        .collect();
+    let mut m = vec![0.0; n];
+    m[0] = secants[0];
+    m[n - 1] = secants[n - 2];
+    for i in 1..n - 1 {
+        m[i] = if secants[i - 1] * secants[i] <= 0.0 {
+            0.0
+        } else {
+            // Weighted harmonic mean (Fritsch & Butland 1984), which keeps
+            // α, β within the monotonicity region without a second pass.
+            let h0 = xs[i] - xs[i - 1];
+            let h1 = xs[i + 1] - xs[i];
+            let w1 = 2.0 * h1 + h0;
+            let w2 = h1 + 2.0 * h0;
+            (w1 + w2) / (w1 / secants[i - 1] + w2 / secants[i])
+        };
+    }
+    m
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn pts(p: &[(f64, f64)]) -> Vec<(SocPercent, Volts)> {
+        p.iter().map(|(s, v)| (SocPercent(*s), Volts(*v))).collect()
+    }
+
+    #[test]
+    fn passes_through_its_points_and_stays_monotone() {
+        let c = MonotoneCurve::new(&pts(&[
+            (0.0, 1.95),
+            (20.0, 2.00),
+            (50.0, 2.03),
+            (55.0, 2.08),
+            (100.0, 2.12),
+        ]))
+        .unwrap();
+        for (s, v) in c.points() {
+            assert_relative_eq!(c.volts_at(s).0, v.0, epsilon = 1e-12);
+        }
+        let mut prev = f64::NEG_INFINITY;
+        for i in 0..=10_000 {
+            let v = c.volts_at(SocPercent(i as f64 / 100.0)).0;
+            assert!(v > prev, "not increasing at {}", i);
+            prev = v;
+        }
+    }
+
+    #[test]
+    fn inverse_round_trips_and_clamps() {
+        let c = MonotoneCurve::new(&pts(&[(0.0, 1.98), (50.0, 2.04), (100.0, 2.11)])).unwrap();
+        for s in [0.5, 10.0, 33.3, 50.0, 75.0, 99.0] {
+            let v = c.volts_at(SocPercent(s));
+            assert_relative_eq!(c.soc_at(v).soc.0, s, epsilon = 1e-9);
+        }
+        let above = c.soc_at(Volts(2.15));
+        assert_eq!(above.soc.0, 100.0);
+        let (end, by) = above.beyond.unwrap();
+        assert_eq!(end, CurveEnd::AboveFull);
+        assert_relative_eq!(by.0, 0.04, epsilon = 1e-12);
+        assert_eq!(c.soc_at(Volts(1.5)).beyond.unwrap().0, CurveEnd::BelowEmpty);
+        assert_eq!(c.soc_at(Volts(f64::NAN)).soc.0, 0.0);
+    }
+
+    #[test]
+    fn refuses_bad_points() {
+        assert!(matches!(
+            MonotoneCurve::new(&pts(&[(0.0, 2.0)])),
+            Err(CurveError::TooFewPoints(1))
+        ));
+        assert!(matches!(
+            MonotoneCurve::new(&pts(&[(0.0, 2.0), (0.0, 2.1)])),
+            Err(CurveError::NotIncreasing { .. })
+        ));
+        assert!(matches!(
+            MonotoneCurve::new(&pts(&[(0.0, 2.1), (50.0, 2.0)])),
+            Err(CurveError::NotIncreasing { .. })
+        ));
+        assert!(matches!(
+            MonotoneCurve::new(&pts(&[(0.0, 2.0), (120.0, 2.1)])),
+            Err(CurveError::SocOutOfRange { .. })
+        ));
+        assert!(matches!(
+            MonotoneCurve::new(&pts(&[(0.0, f64::NAN), (100.0, 2.1)])),
+            Err(CurveError::NotFinite { .. })
+        ));
+    }
+}

@@ -1,0 +1,688 @@
+//! The profile store: chemistry-specific voltage-to-charge curves and the rules
+//! that go with them.
+//!
+//! A profile is a TOML file ([`schema::ProfileFile`]). Built-in profiles live in
+//! `profiles/` and are embedded at build time; user profiles come from a
+//! directory and override a built-in of the same id ([`store`]). Loading
+//! validates every value and builds a [`curve::MonotoneCurve`].
+
+pub mod curve;
+pub mod schema;
+pub mod store;
+
+use crate::electrolyte::{self, ElectrolyteError};
+use crate::units::{Celsius, MillivoltsPerKelvin, SocPercent, SpecificGravity, Volts};
+use curve::{CurveError, MonotoneCurve, SocLookup};
+use schema::{CoefficientKind, CurveKind};
+pub use schema::{Family, ProfileFile, Sourced};
+
+/// A profile could not be loaded or used.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ProfileError {
+    /// The TOML could not be read or does not match the schema.
+    #[error("{origin}:{line}: {message}")]
+    Syntax {
+        /// File name or built-in name.
+        origin: String,
+        /// 1-based line of the problem.
+        line: usize,
+        /// What the TOML reader said.
+        message: String,
+    },
+    /// A value is out of its allowed range.
+    #[error("{origin}: key `{key}`: {problem}")]
+    Invalid {
+        /// File name or built-in name.
+        origin: String,
+        /// Dotted key path.
+        key: String,
+        /// What is wrong and what is expected.
+        problem: String,
+    },
+    /// The curve could not be built.
+    #[error("{origin}: key `curve`: {source}")]
+    Curve {
+        /// File name or built-in name.
+        origin: String,
+        /// The curve's complaint.
+        source: CurveError,
+    },
+    /// The electrolyte chain failed while deriving the curve.
+    #[error("{origin}: deriving the curve from the electrolyte: {source}")]
+    Electrolyte {
+        /// File name or built-in name.
+        origin: String,
+        /// The electrolyte's complaint.
+        source: ElectrolyteError,
+    },
+    /// No profile with that id.
+    #[error("unknown profile '{id}'{}; `restvolt profiles list` shows the ids", suggestion.as_ref().map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default())]
+    Unknown {
+        /// The id asked for.
+        id: String,
+        /// The nearest known id, if one is close.
+        suggestion: Option<String>,
+    },
+    /// A file or directory could not be read.
+    #[error("{path}: {message}")]
+    Io {
+        /// The path.
+        path: String,
+        /// The system's message.
+        message: String,
+    },
+    /// A hydrometer reading was given for a profile without accessible electrolyte.
+    #[error(
+        "profile '{0}' is valve-regulated: its electrolyte cannot be sampled with a hydrometer"
+    )]
+    NoHydrometer(String),
+}
+
+/// A loaded, validated profile.
+#[derive(Clone, Debug)]
+pub struct Profile {
+    /// The file as written (for `show` and JSON output).
+    pub spec: ProfileFile,
+    /// Where it was loaded from ("built-in" or a path).
+    pub origin: String,
+    curve: MonotoneCurve,
+}
+
+/// Points at which a derived curve is sampled before interpolation.
+const DERIVED_STEP_PERCENT: f64 = 5.0;
+
+impl Profile {
+    /// Parse and validate a profile from TOML text; `origin` names it in messages.
+    pub fn from_toml(text: &str, origin: &str) -> Result<Profile, ProfileError> {
+        let spec: ProfileFile = toml::from_str(text).map_err(|e| ProfileError::Syntax {
+            origin: origin.to_string(),
+            line: e
+                .span()
+                .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
+                .unwrap_or(1),
+            message: e.message().to_string(),
+        })?;
+        Profile::from_spec(spec, origin)
+    }
+
+    /// Validate an already parsed profile.
+    pub fn from_spec(spec: ProfileFile, origin: &str) -> Result<Profile, ProfileError> {
+        validate(&spec, origin)?;
+        let curve = build_curve(&spec, origin)?;
+        let profile = Profile {
+            spec,
+            origin: origin.to_string(),
+            curve,
+        };
+        // A temperature coefficient must keep the curve increasing over the
+        // field range, or the inverse would not be unique.
+        for t in [-40.0, -20.0, 0.0, 45.0, 60.0] {
+            let mut prev = f64::NEG_INFINITY;
+            for i in 0..=100 {
+                let v = profile.ocv_per_cell_at(SocPercent(i as f64), Celsius(t)).0;
+                if v <= prev {
+                    return Err(invalid(
+                        origin,
+                        "temperature",
+                        format!("the curve stops increasing at {t} °C near {i} %: coefficient too large"),
+                    ));
+                }
+                prev = v;
+            }
+        }
+        Ok(profile)
+    }
+
+    /// The profile's id.
+    pub fn id(&self) -> &str {
+        &self.spec.id
+    }
+
+    /// Chemistry family.
+    pub fn family(&self) -> Family {
+        self.spec.family
+    }
+
+    /// Default cells in series per unit.
+    pub fn cells(&self) -> u32 {
+        self.spec.cells.value
+    }
+
+    /// The curve at 25 °C.
+    pub fn curve(&self) -> &MonotoneCurve {
+        &self.curve
+    }
+
+    /// Electrolyte SG 25/25 at a state of charge (linear between the discharged and full values:
+    /// acid is consumed in proportion to the charge removed; common practice).
+    pub fn sg_at(&self, soc: SocPercent) -> SpecificGravity {
+        let (lo, hi) = self.sg_range();
+        SpecificGravity(lo.0 + (hi.0 - lo.0) * soc.0.clamp(0.0, 100.0) / 100.0)
+    }
+
+    /// State of charge from an electrolyte SG 25/25 (unclamped, so callers can see readings beyond the ends).
+    pub fn soc_from_sg(&self, sg: SpecificGravity) -> SocPercent {
+        let (lo, hi) = self.sg_range();
+        SocPercent((sg.0 - lo.0) / (hi.0 - lo.0) * 100.0)
+    }
+
+    /// (discharged, full-charge) SG 25/25.
+    pub fn sg_range(&self) -> (SpecificGravity, SpecificGravity) {
+        (
+            SpecificGravity(self.spec.electrolyte.discharged_sg.value),
+            SpecificGravity(self.spec.electrolyte.full_charge_sg.value),
+        )
+    }
+
+    /// Whether a hydrometer can be used on this type.
+    pub fn hydrometer_usable(&self) -> bool {
+        !self.spec.family.valve_regulated()
+    }
+
+    /// Rest-voltage temperature coefficient per cell at a state of charge.
+    /// This is the open-circuit coefficient, never a charging-voltage compensation.
+    pub fn ocv_coefficient(&self, soc: SocPercent) -> MillivoltsPerKelvin {
+        match (
+            self.spec.temperature.coefficient,
+            &self.spec.temperature.ocv_mv_per_k_per_cell,
+        ) {
+            (CoefficientKind::Fixed, Some(c)) => MillivoltsPerKelvin(c.value),
+            _ => electrolyte::molality_from_sg25(self.sg_at(soc))
+                .and_then(electrolyte::ocv_temperature_coefficient)
+                // The SG range is validated at load, so this fallback is never
+                // expected; 0.2 mV/K is the mid-range value of REFERENCES §1.3.
+                .unwrap_or(MillivoltsPerKelvin(0.2)),
+        }
+    }
+
+    /// OCV per cell at a state of charge and electrolyte temperature.
+    pub fn ocv_per_cell_at(&self, soc: SocPercent, t: Celsius) -> Volts {
+        let v25 = self.curve.volts_at(soc);
+        Volts(v25.0 + self.ocv_coefficient(soc).0 / 1000.0 * (t.0 - 25.0))
+    }
+
+    /// State of charge from an OCV per cell already referred to 25 °C.
+    pub fn soc_from_ocv25(&self, volts_per_cell: Volts) -> SocLookup {
+        self.curve.soc_at(volts_per_cell)
+    }
+
+    /// Freezing point of the electrolyte at a state of charge.
+    pub fn freezing_point_at(&self, soc: SocPercent) -> Result<Celsius, ElectrolyteError> {
+        electrolyte::freezing_point(self.sg_at(soc))
+    }
+
+    /// Minimum rest before a reading is trusted.
+    pub fn minimum_rest_hours(&self) -> f64 {
+        self.spec.rest.minimum_hours.value
+    }
+
+    /// Preferred rest.
+    pub fn preferred_rest_hours(&self) -> f64 {
+        self.spec.rest.preferred_hours.value
+    }
+}
+
+fn invalid(origin: &str, key: &str, problem: String) -> ProfileError {
+    ProfileError::Invalid {
+        origin: origin.to_string(),
+        key: key.to_string(),
+        problem,
+    }
+}
+
+fn check_range(
+    origin: &str,
+    key: &str,
+    v: f64,
+    lo: f64,
+    hi: f64,
+    unit: &str,
+) -> Result<(), ProfileError> {
+    if !v.is_finite() {
+        return Err(invalid(origin, key, "is not a finite number".into()));
+    }
+    if v < lo || v > hi {
+        return Err(invalid(
+            origin,
+            key,
+            format!("{v} is outside the allowed range {lo}–{hi} {unit}"),
+        ));
+    }
+    Ok(())
+}
+
+fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
+    let id_ok = !s.id.is_empty()
+        && s.id
+            .chars()
+            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-');
+    if !id_ok {
+        return Err(invalid(
+            origin,
+            "id",
+            format!("'{}' must be lower-case letters, digits and hyphens", s.id),
+        ));
+    }
+    if s.cells.value == 0 || s.cells.value > 400 {
+        return Err(invalid(
+            origin,
+            "cells.value",
+            format!("{} cells: expected 1–400", s.cells.value),
+        ));
+    }
+    let e = &s.electrolyte;
+    check_range(
+        origin,
+        "electrolyte.full_charge_sg.value",
+        e.full_charge_sg.value,
+        1.0,
+        1.4,
+        "",
+    )?;
+    check_range(
+        origin,
+        "electrolyte.discharged_sg.value",
+        e.discharged_sg.value,
+        1.0,
+        1.4,
+        "",
+    )?;
+    if e.discharged_sg.value >= e.full_charge_sg.value {
+        return Err(invalid(
+            origin,
+            "electrolyte",
+            format!(
+                "SG range inverted: discharged {} must be below full charge {}",
+                e.discharged_sg.value, e.full_charge_sg.value
+            ),
+        ));
+    }
+    let r = &s.rest;
+    check_range(
+        origin,
+        "rest.minimum_hours.value",
+        r.minimum_hours.value,
+        0.0,
+        720.0,
+        "h",
+    )?;
+    check_range(
+        origin,
+        "rest.preferred_hours.value",
+        r.preferred_hours.value,
+        0.1,
+        720.0,
+        "h",
+    )?;
+    if r.minimum_hours.value > r.preferred_hours.value {
+        return Err(invalid(
+            origin,
+            "rest",
+            "minimum_hours must not exceed preferred_hours".into(),
+        ));
+    }
+    check_range(
+        origin,
+        "rest.settling_limit_mv_per_h.value",
+        r.settling_limit_mv_per_h.value,
+        0.01,
+        100.0,
+        "mV/h",
+    )?;
+    check_range(
+        origin,
+        "rest.surface_charge_mv_per_cell_at_1h.value",
+        r.surface_charge_mv_per_cell_at_1h.value,
+        0.0,
+        500.0,
+        "mV",
+    )?;
+    check_range(
+        origin,
+        "rest.recovery_mv_per_cell_at_1h.value",
+        r.recovery_mv_per_cell_at_1h.value,
+        0.0,
+        500.0,
+        "mV",
+    )?;
+    let t = &s.thresholds;
+    check_range(
+        origin,
+        "thresholds.recharge_below_soc_percent.value",
+        t.recharge_below_soc_percent.value,
+        0.0,
+        100.0,
+        "%",
+    )?;
+    check_range(
+        origin,
+        "thresholds.urgent_below_soc_percent.value",
+        t.urgent_below_soc_percent.value,
+        0.0,
+        100.0,
+        "%",
+    )?;
+    if t.urgent_below_soc_percent.value > t.recharge_below_soc_percent.value {
+        return Err(invalid(
+            origin,
+            "thresholds",
+            "urgent_below_soc_percent must not exceed recharge_below_soc_percent".into(),
+        ));
+    }
+    check_range(
+        origin,
+        "thresholds.beyond_full_allowance_mv_per_cell.value",
+        t.beyond_full_allowance_mv_per_cell.value,
+        0.0,
+        500.0,
+        "mV",
+    )?;
+    check_range(
+        origin,
+        "tolerance.curve_mv_per_cell.value",
+        s.tolerance.curve_mv_per_cell.value,
+        0.0,
+        200.0,
+        "mV",
+    )?;
+    check_range(
+        origin,
+        "self_discharge.soc_percent_per_30_days_at_25c.value",
+        s.self_discharge.soc_percent_per_30_days_at_25c.value,
+        0.0,
+        50.0,
+        "%",
+    )?;
+    match (s.temperature.coefficient, &s.temperature.ocv_mv_per_k_per_cell) {
+        (CoefficientKind::Fixed, None) => {
+            return Err(invalid(
+                origin,
+                "temperature.ocv_mv_per_k_per_cell",
+                "required when coefficient = \"fixed\"".into(),
+            ))
+        }
+        (CoefficientKind::Fixed, Some(c)) => check_range(
+            origin,
+            "temperature.ocv_mv_per_k_per_cell.value",
+            c.value,
+            -2.0,
+            2.0,
+            "mV/K per cell (an OCV coefficient; the −3 mV/K charging compensation does not belong here)",
+        )?,
+        (CoefficientKind::Electrolyte, Some(_)) => {
+            return Err(invalid(
+                origin,
+                "temperature.ocv_mv_per_k_per_cell",
+                "only allowed with coefficient = \"fixed\"".into(),
+            ))
+        }
+        (CoefficientKind::Electrolyte, None) => {}
+    }
+    match s.curve.kind {
+        CurveKind::Derived if !s.curve.points.is_empty() => Err(invalid(
+            origin,
+            "curve.points",
+            "a derived curve takes no points (use kind = \"points\")".into(),
+        )),
+        CurveKind::Points if s.curve.points.is_empty() => Err(invalid(
+            origin,
+            "curve.points",
+            "kind = \"points\" needs at least two [soc_percent, volts_per_cell] points".into(),
+        )),
+        _ => Ok(()),
+    }?;
+    if let Some(f) = &s.float {
+        check_range(
+            origin,
+            "float.window_low_volts_per_cell.value",
+            f.window_low_volts_per_cell.value,
+            2.0,
+            2.6,
+            "V",
+        )?;
+        check_range(
+            origin,
+            "float.window_high_volts_per_cell.value",
+            f.window_high_volts_per_cell.value,
+            2.0,
+            2.6,
+            "V",
+        )?;
+        check_range(
+            origin,
+            "float.minimum_volts_per_cell.value",
+            f.minimum_volts_per_cell.value,
+            2.0,
+            2.6,
+            "V",
+        )?;
+        if f.window_low_volts_per_cell.value >= f.window_high_volts_per_cell.value {
+            return Err(invalid(
+                origin,
+                "float",
+                "window_low must be below window_high".into(),
+            ));
+        }
+        check_range(
+            origin,
+            "float.compensation_mv_per_k_per_cell.value",
+            f.compensation_mv_per_k_per_cell.value,
+            -10.0,
+            0.0,
+            "mV/K",
+        )?;
+        check_range(
+            origin,
+            "float.compensation_max_celsius.value",
+            f.compensation_max_celsius.value,
+            0.0,
+            70.0,
+            "°C",
+        )?;
+        check_range(
+            origin,
+            "float.compensation_min_celsius.value",
+            f.compensation_min_celsius.value,
+            -40.0,
+            25.0,
+            "°C",
+        )?;
+        check_range(
+            origin,
+            "float.expected_current_ma_per_ah.value",
+            f.expected_current_ma_per_ah.value,
+            0.0,
+            100.0,
+            "mA/Ah",
+        )?;
+    }
+    Ok(())
+}
+
+fn build_curve(s: &ProfileFile, origin: &str) -> Result<MonotoneCurve, ProfileError> {
+    let points: Vec<(SocPercent, Volts)> = match s.curve.kind {
+        CurveKind::Points => s
+            .curve
+            .points
+            .iter()
+            .map(|[soc, v]| (SocPercent(*soc), Volts(*v)))
+            .collect(),
+        CurveKind::Derived => {
+            let (lo, hi) = (
+                s.electrolyte.discharged_sg.value,
+                s.electrolyte.full_charge_sg.value,
+            );
+            let steps = (100.0 / DERIVED_STEP_PERCENT).round() as usize;
+            let mut pts = Vec::with_capacity(steps + 1);
+            for i in 0..=steps {
+                let soc = i as f64 * DERIVED_STEP_PERCENT;
+                let sg = SpecificGravity(lo + (hi - lo) * soc / 100.0);
+                let v = electrolyte::cell_ocv_25c_from_sg25(sg).map_err(|source| {
+                    ProfileError::Electrolyte {
+                        origin: origin.to_string(),
+                        source,
+                    }
+                })?;
+                pts.push((SocPercent(soc), v));
+            }
+            pts
+        }
+    };
+    MonotoneCurve::new(&points).map_err(|source| ProfileError::Curve {
+        origin: origin.to_string(),
+        source,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::store::ProfileStore;
+    use super::*;
+
+    fn automotive() -> Profile {
+        ProfileStore::builtin()
+            .unwrap()
+            .get("flooded-automotive")
+            .unwrap()
+            .clone()
+    }
+
+    #[test]
+    fn every_shipped_profile_loads_and_is_monotone_cold_and_hot() {
+        let store = ProfileStore::builtin().unwrap();
+        let ids: Vec<&str> = store.iter().map(|p| p.id()).collect();
+        for want in [
+            "flooded-automotive",
+            "flooded-deep-cycle",
+            "flooded-stationary",
+            "flooded-tropical",
+            "efb",
+            "agm",
+            "gel",
+        ] {
+            assert!(ids.contains(&want), "missing {want}");
+        }
+        for p in store.iter() {
+            for t in [25.0, -20.0, 45.0] {
+                let mut prev = f64::NEG_INFINITY;
+                for i in 0..=1000 {
+                    let v = p.ocv_per_cell_at(SocPercent(i as f64 / 10.0), Celsius(t)).0;
+                    assert!(v > prev, "{} not increasing at {t} °C, {i}‰", p.id());
+                    prev = v;
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn derived_automotive_curve_reproduces_the_trade_table() {
+        // Common practice: the widely published 12 V flooded table at 25 °C
+        // (REFERENCES §1.5): 100/75/50/25/0 % → 12.65/12.45/12.24/12.06/11.89 V, ±0.03 V.
+        let p = automotive();
+        for (soc, volts) in [
+            (100.0, 12.65),
+            (75.0, 12.45),
+            (50.0, 12.24),
+            (25.0, 12.06),
+            (0.0, 11.89),
+        ] {
+            let v = p.curve().volts_at(SocPercent(soc)).0 * 6.0;
+            assert!((v - volts).abs() <= 0.03, "{soc} %: {v:.3} V vs {volts} V");
+            // And the inverse: the table voltage reads back within 3 % SOC.
+            let back = p.soc_from_ocv25(Volts(volts / 6.0)).soc.0;
+            assert!((back - soc).abs() <= 4.0, "{volts} V → {back:.1} %");
+        }
+    }
+
+    #[test]
+    fn derived_curve_agrees_with_the_sg_plus_084_rule() {
+        // Common practice (REFERENCES §1.5; US DOE Fundamentals Handbook uses +0.845,
+        // from memory): OCV per cell ≈ SG + 0.84 V within 0.025 V over SG 1.10–1.30.
+        for sg in [1.10, 1.15, 1.20, 1.25, 1.30] {
+            let v = electrolyte::cell_ocv_25c_from_sg25(SpecificGravity(sg))
+                .unwrap()
+                .0;
+            assert!((v - (sg + 0.84)).abs() <= 0.025, "SG {sg}: {v:.4} V");
+        }
+    }
+
+    #[test]
+    fn temperature_coefficient_is_the_open_circuit_one() {
+        // Derived (REFERENCES §1.3): about +0.22 mV/K per cell at 2–5 mol/kg,
+        // never the −3 mV/K charging compensation.
+        let p = automotive();
+        let c = p.ocv_coefficient(SocPercent(75.0)).0;
+        assert!(c > 0.1 && c < 0.35, "{c}");
+    }
+
+    #[test]
+    fn validation_names_the_key() {
+        let text = include_str!("../../profiles/flooded-automotive.toml");
+        let inverted = text.replace(
+            "discharged_sg = { value = 1.12",
+            "discharged_sg = { value = 1.3",
+        );
+        let err = Profile::from_toml(&inverted, "x.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("x.toml") && err.contains("electrolyte") && err.contains("inverted"),
+            "{err}"
+        );
+
+        let unknown = text.replace("[tolerance]", "[tolerance]\nwobble = 3");
+        let err = Profile::from_toml(&unknown, "y.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.starts_with("y.toml:") && err.contains("wobble"),
+            "{err}"
+        );
+
+        let nonfinite = text.replace(
+            "curve_mv_per_cell = { value = 10.0",
+            "curve_mv_per_cell = { value = nan",
+        );
+        let err = Profile::from_toml(&nonfinite, "z.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("tolerance.curve_mv_per_cell"), "{err}");
+
+        let charging = include_str!("../../profiles/agm.toml").replace(
+            "ocv_mv_per_k_per_cell = { value = 0.2",
+            "ocv_mv_per_k_per_cell = { value = -3.0",
+        );
+        let err = Profile::from_toml(&charging, "c.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("charging compensation"), "{err}");
+
+        let few = include_str!("../../profiles/agm.toml").replace(
+            "points = [[0.0, 1.975], [25.0, 2.025], [50.0, 2.070], [75.0, 2.110], [100.0, 2.140]]",
+            "points = [[0.0, 1.975]]",
+        );
+        let err = Profile::from_toml(&few, "p.toml").unwrap_err().to_string();
+        assert!(err.contains("at least two"), "{err}");
+    }
+
+    #[test]
+    fn unknown_ids_get_a_suggestion() {
+        let store = ProfileStore::builtin().unwrap();
+        let err = store.get("flooded-automotve").unwrap_err().to_string();
+        assert!(err.contains("did you mean 'flooded-automotive'"), "{err}");
+        let err = store.get("zzzz").unwrap_err().to_string();
+        assert!(!err.contains("did you mean"), "{err}");
+    }
+
+    #[test]
+    fn user_profiles_override_builtins_and_say_so() {
+        let dir = tempfile::tempdir().unwrap();
+        let text =
+            include_str!("../../profiles/agm.toml").replace("name = \"AGM", "name = \"Our AGM");
+        std::fs::write(dir.path().join("agm.toml"), text).unwrap();
+        let store = ProfileStore::with_user_dir(Some(dir.path())).unwrap();
+        assert!(store.get("agm").unwrap().spec.name.starts_with("Our AGM"));
+        assert_eq!(store.notices().len(), 1);
+        assert!(store.notices()[0].contains("overrides"));
+    }
+}

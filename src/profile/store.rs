@@ -1,0 +1,102 @@
+//! Where profiles come from: the built-in set embedded at build time, and a
+//! user directory (`--profiles DIR` or `RESTVOLT_PROFILES`) whose files
+//! override a built-in of the same id.
+
+use super::{Profile, ProfileError};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+mod embedded {
+    include!(concat!(env!("OUT_DIR"), "/embedded_profiles.rs"));
+}
+
+/// Environment variable naming a directory of user profiles.
+pub const PROFILES_ENV: &str = "RESTVOLT_PROFILES";
+
+/// All profiles in effect, by id.
+#[derive(Clone, Debug, Default)]
+pub struct ProfileStore {
+    profiles: BTreeMap<String, Profile>,
+    notices: Vec<String>,
+}
+
+impl ProfileStore {
+    /// The built-in profiles only.
+    pub fn builtin() -> Result<ProfileStore, ProfileError> {
+        let mut store = ProfileStore::default();
+        for (name, text) in embedded::EMBEDDED {
+            let p = Profile::from_toml(text, &format!("built-in profiles/{name}"))?;
+            store.profiles.insert(p.id().to_string(), p);
+        }
+        Ok(store)
+    }
+
+    /// Built-ins plus the `*.toml` files of a user directory. A user profile
+    /// with a built-in's id replaces it, and a notice says so.
+    pub fn with_user_dir(dir: Option<&Path>) -> Result<ProfileStore, ProfileError> {
+        let mut store = ProfileStore::builtin()?;
+        let Some(dir) = dir else {
+            return Ok(store);
+        };
+        let io = |e: std::io::Error| ProfileError::Io {
+            path: dir.display().to_string(),
+            message: e.to_string(),
+        };
+        let mut paths: Vec<_> = std::fs::read_dir(dir)
+            .map_err(io)?
+            .filter_map(Result::ok)
+            .map(|e| e.path())
+            .filter(|p| p.extension().is_some_and(|x| x == "toml"))
+            .collect();
+        paths.sort();
+        for path in paths {
+            let p = load_file(&path)?;
+            if let Some(old) = store.profiles.get(p.id()) {
+                store.notices.push(format!(
+                    "profile '{}' from {} overrides the one from {}",
+                    p.id(),
+                    path.display(),
+                    old.origin
+                ));
+            }
+            store.profiles.insert(p.id().to_string(), p);
+        }
+        Ok(store)
+    }
+
+    /// Look a profile up by id; an unknown id gets the nearest known one as a suggestion.
+    pub fn get(&self, id: &str) -> Result<&Profile, ProfileError> {
+        self.profiles.get(id).ok_or_else(|| ProfileError::Unknown {
+            id: id.to_string(),
+            suggestion: self.suggest(id),
+        })
+    }
+
+    fn suggest(&self, id: &str) -> Option<String> {
+        self.profiles
+            .keys()
+            .map(|k| (strsim::damerau_levenshtein(id, k), k))
+            .filter(|(d, k)| *d <= 3.max(k.len() / 3))
+            .min()
+            .map(|(_, k)| k.clone())
+    }
+
+    /// All profiles, sorted by id.
+    pub fn iter(&self) -> impl Iterator<Item = &Profile> {
+        self.profiles.values()
+    }
+
+    /// Notices about overrides, for the user.
+    pub fn notices(&self) -> &[String] {
+        &self.notices
+    }
+}
+
+/// Load and validate one profile file.
+pub fn load_file(path: &Path) -> Result<Profile, ProfileError> {
+    let text = std::fs::read_to_string(path).map_err(|e| ProfileError::Io {
+        path: path.display().to_string(),
+        message: e.to_string(),
+    })?;
+    Profile::from_toml(&text, &path.display().to_string())
+}
