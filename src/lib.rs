@@ -6,4 +6,5 @@
 //! fleet → rules → report. No module reaches back up that chain.
 #![warn(missing_docs)]
 
+pub mod settle;
 pub mod units;

@@ -162,7 +162,8 @@ pub enum UnitError {
 /// from spreadsheets often has, and the Unicode minus sign.
 pub fn parse_decimal(raw: &str, expected: &str) -> Result<f64, UnitError> {
     let text = raw.trim().replace('\u{2212}', "-");
-    let normalised = if text.contains(',') && !text.contains('.') && text.matches(',').count() == 1 {
+    let normalised = if text.contains(',') && !text.contains('.') && text.matches(',').count() == 1
+    {
         text.replace(',', ".")
     } else {
         text.clone()
@@ -280,7 +281,11 @@ impl MeterAccuracy {
 
 impl fmt::Display for MeterAccuracy {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "±({}% + {} counts)", self.percent_of_reading, self.counts)
+        write!(
+            f,
+            "±({}% + {} counts)",
+            self.percent_of_reading, self.counts
+        )
     }
 }
 
@@ -320,7 +325,11 @@ mod tests {
         assert_relative_eq!(parse_temperature("−4 °C").unwrap().0, -4.0);
         // 32 °F is the freezing point of water (definition of the scale).
         assert_relative_eq!(parse_temperature("32F").unwrap().0, 0.0);
-        assert_relative_eq!(parse_temperature("80°F").unwrap().0, 26.666_666, epsilon = 1e-5);
+        assert_relative_eq!(
+            parse_temperature("80°F").unwrap().0,
+            26.666_666,
+            epsilon = 1e-5
+        );
         assert_eq!(
             parse_temperature("25"),
             Err(UnitError::TemperatureWithoutUnit("25".into()))
@@ -356,7 +365,11 @@ mod tests {
     fn meter_accuracy() {
         let m = parse_meter("0.5%+2").unwrap();
         // REFERENCES §7: ±(0.5 % + 2 counts at 10 mV) at 12.6 V is ±0.083 V.
-        assert_relative_eq!(m.half_width(Volts(12.6), Volts(0.01)).0, 0.083, epsilon = 1e-9);
+        assert_relative_eq!(
+            m.half_width(Volts(12.6), Volts(0.01)).0,
+            0.083,
+            epsilon = 1e-9
+        );
         assert!(parse_meter("0.5").is_err());
         assert_eq!(parse_meter("1%").unwrap().counts, 0.0);
     }
