@@ -81,6 +81,19 @@ fn parse_volts(raw: &str) -> Option<f64> {
     parse_decimal(text, "volts").ok()
 }
 
+/// Split one line into trimmed fields, honouring CSV quotes.
+fn split_line(line: &str, delimiter: u8) -> Result<csv::StringRecord, csv::Error> {
+    let mut rdr = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(false)
+        .flexible(true)
+        .trim(csv::Trim::All)
+        .from_reader(line.as_bytes());
+    let mut record = csv::StringRecord::new();
+    rdr.read_record(&mut record)?;
+    Ok(record)
+}
+
 fn sniff_delimiter(text: &str) -> u8 {
     let header = text
         .lines()
@@ -115,24 +128,34 @@ pub fn read_rest_csv<R: Read>(
             message: format!("{e} (expected a UTF-8 text file)"),
         })?;
     let text = text.strip_prefix('\u{feff}').unwrap_or(&text);
-    let mut rdr = csv::ReaderBuilder::new()
-        .delimiter(sniff_delimiter(text))
-        .has_headers(true)
-        .flexible(true)
-        .comment(Some(b'#'))
-        .trim(csv::Trim::All)
-        .from_reader(text.as_bytes());
-
-    let csv_error = |e: csv::Error| {
-        let line = e.position().map_or(0, |p| p.line());
-        SettleError::Line {
-            source_name: src.clone(),
-            line,
-            message: format!("not readable as CSV: {e}"),
+    let delimiter = sniff_delimiter(text);
+    // One reading per line. Lines are split one by one (rather than handing
+    // the whole text to the CSV reader) so that blank and `#` comment lines
+    // still count and every message names the line a spreadsheet shows.
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .map(|(i, l)| (i as u64 + 1, l))
+        .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+        .map(|(line, l)| {
+            split_line(l, delimiter)
+                .map(|r| (line, r))
+                .map_err(|e| SettleError::Line {
+                    source_name: src.clone(),
+                    line,
+                    message: format!("not readable as CSV: {e}"),
+                })
+        });
+    let (header_line, header) = match lines.next() {
+        Some(h) => h?,
+        None => {
+            return Err(SettleError::Header {
+                source_name: src,
+                line: 1,
+                message: "the file is empty: expected a header such as minutes,volts".into(),
+            })
         }
     };
-    let header = rdr.headers().map_err(csv_error)?.clone();
-    let header_line = header.position().map_or(1, |p| p.line());
     let header_error = |message: String| SettleError::Header {
         source_name: src.clone(),
         line: header_line,
@@ -190,9 +213,8 @@ pub fn read_rest_csv<R: Read>(
     let mut out = Vec::new();
     let mut first_offset: Option<FixedOffset> = None;
     let mut saw_local = false;
-    for record in rdr.records() {
-        let record = record.map_err(csv_error)?;
-        let line = record.position().map_or(0, |p| p.line());
+    for item in lines {
+        let (line, record) = item?;
         if record.iter().all(str::is_empty) {
             continue;
         }
