@@ -585,3 +585,44 @@ fn hand_typed_readings() {
         assert!(e.to_string().contains("like 30m=12.93"), "{e}");
     }
 }
+
+#[test]
+fn student_t_and_aicc_match_their_definitions() {
+    // Two-sided 95 % Student t quantiles (published t tables, e.g. NIST/SEMATECH
+    // e-Handbook 1.3.6.7.2): 12.706 (1 dof), 2.228 (10), 2.042 (30).
+    assert!((super::fit::t_975(1).unwrap() - 12.706).abs() < 1e-3);
+    assert!((super::fit::t_975(10).unwrap() - 2.228).abs() < 1e-3);
+    assert!((super::fit::t_975(30).unwrap() - 2.042).abs() < 1e-3);
+    assert!(super::fit::t_975(0).is_none());
+    // AICc = n ln(RSS/n) + 2k + 2k(k+1)/(n−k−1), k = 2 + 1 (Hurvich & Tsai 1989,
+    // published form): n = 10, RSS = 1e−5 → 10 ln 1e−6 + 6 + 24/6 = −128.155.
+    assert!((super::fit::aicc(1e-5, 10, 2) + 128.155).abs() < 1e-3);
+    assert!(super::fit::aicc(1e-5, 4, 2).is_infinite());
+}
+
+#[test]
+fn a_drift_without_curvature_does_not_fake_an_asymptote() {
+    // A slow straight-line drift (0.5 mV/h) holds no information on V∞: the
+    // exponential must be declined, not extrapolated.
+    let f = |t: f64| 12.9 - 0.0005 * t;
+    let times: Vec<f64> = (1..=16).map(|i| i as f64 * 0.5).collect();
+    let p: Vec<RestPoint> = times
+        .iter()
+        .map(|&t| RestPoint {
+            elapsed: Hours(t),
+            volts: Volts(f(t)),
+        })
+        .collect();
+    let a = analyse(&p, &opts(None)).unwrap();
+    assert!(
+        a.fit(RelaxationModel::Exponential).is_none(),
+        "{:?}",
+        a.fits
+    );
+    assert!(
+        a.notes.iter().any(|n| n.contains("no curvature")),
+        "{:?}",
+        a.notes
+    );
+    assert_eq!(a.chosen, RelaxationModel::SemiLog);
+}
