@@ -31,7 +31,7 @@ pub mod input;
 use crate::units::{Hours, Volts};
 use serde::{Deserialize, Serialize};
 
-pub use input::{parse_reading_arg, read_rest_csv, RestReading};
+pub use input::{parse_reading_arg, points, read_rest_csv, RestReading};
 
 /// One rest-voltage reading.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]

@@ -4,7 +4,6 @@
 //! fit against those known parameters, and the coverage checks against the
 //! nominal 95 % of a Student-t interval (JCGM 100:2008 G.3).
 
-use super::input::points;
 use super::*;
 use crate::units::Celsius;
 use rand::rngs::StdRng;
