@@ -11,5 +11,6 @@ pub mod electrolyte;
 pub mod profile;
 pub mod rules;
 pub mod safety;
+pub mod settle;
 pub mod units;
 pub mod ventilation;
