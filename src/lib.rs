@@ -6,4 +6,5 @@
 //! fleet → rules → report. No module reaches back up that chain.
 #![warn(missing_docs)]
 
+pub mod report;
 pub mod units;
