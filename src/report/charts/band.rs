@@ -148,10 +148,10 @@ pub fn band_series(
             }
         }
     }
+    c.end_marks();
     for t in lines {
         c.reference_line(t.y, &t.label, "2 3", "threshold");
     }
-    c.end_marks();
     c.finish(frame)
 }
 

@@ -188,7 +188,8 @@ impl Canvas {
         let width = f64::from(f.width_px.clamp(240, 4000));
         let (legend_pos, rows) = legend_layout(&plan.legend, 12.0, width - 24.0);
         let top = 36.0 + rows as f64 * LEGEND_ROW + 8.0;
-        let (left, right_pad, bottom_pad) = (64.0, 18.0, 46.0);
+        // The right pad leaves room for half of a last x tick label such as "24 Mar".
+        let (left, right_pad, bottom_pad) = (64.0, 28.0, 46.0);
         let height = f64::from(f.height_px.min(4000)).max(top + bottom_pad + 80.0);
         let area = Area {
             left,
@@ -260,7 +261,7 @@ impl Canvas {
             "svg",
             attrs! {
                 "xmlns" => "http://www.w3.org/2000/svg",
-                "width" => width, "height" => height,
+                "width" => fixed(width, 0), "height" => fixed(height, 0),
                 "viewBox" => format!("0 0 {} {}", fixed(width, 0), fixed(height, 0)),
                 "role" => "img",
                 "aria-labelledby" => format!("{tid} {did}"),
@@ -481,18 +482,31 @@ impl Canvas {
         }
     }
 
-    /// A full-width horizontal reference line at data value `v`, labelled at its right end.
+    /// A full-width horizontal reference line at data value `v`, labelled at
+    /// its right end; drawn after the marks and outside the clip so the label
+    /// is never cut, and skipped when `v` lies outside a fixed axis range.
     pub fn reference_line(&mut self, v: f64, label: &str, dash: &str, class: &str) {
+        if v < self.y.d0 || v > self.y.d1 {
+            return;
+        }
         let (a, py) = (self.area, self.y.map(v));
         self.line(a.left, py, a.right, py, INK, Some(dash), class);
-        self.label(a.right - 4.0, py - 4.0, "end", label, class);
+        // Above the line, unless that would leave the plot at the top.
+        let ly = if py - 16.0 < a.top {
+            py + 13.0
+        } else {
+            py - 4.0
+        };
+        self.label(a.right - 4.0, ly, "end", label, class);
     }
 
     /// A text label in pixel coordinates.
     pub fn label(&mut self, x: f64, y: f64, anchor: &str, text: &str, class: &str) {
         self.svg.text(
             "text",
-            attrs! {"class" => format!("{class}-label"), "x" => x, "y" => y, "text-anchor" => anchor},
+            // A white halo keeps labels readable where they cross lines or bands.
+            attrs! {"class" => format!("{class}-label"), "x" => x, "y" => y, "text-anchor" => anchor,
+            "stroke" => "#FFFFFF", "stroke-width" => "3", "paint-order" => "stroke"},
             text,
         );
     }

@@ -187,3 +187,56 @@ mod tests {
         assert!(luminance("#000000").abs() < 1e-12);
     }
 }
+
+#[cfg(test)]
+mod robustness {
+    //! Whatever numbers arrive, every chart returns well-formed XML with its
+    //! text alternative and no NaN or infinity in any attribute.
+    use super::test_support::{check, frame};
+    use super::*;
+    use proptest::prelude::*;
+
+    fn any_value() -> impl Strategy<Value = f64> {
+        prop_oneof![
+            4 => -1e3..1e3f64,
+            1 => Just(f64::NAN),
+            1 => Just(f64::INFINITY),
+            1 => Just(f64::NEG_INFINITY),
+            1 => Just(0.0),
+            1 => prop::num::f64::ANY,
+        ]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        #[test]
+        fn every_chart_stays_valid(
+            v in prop::collection::vec(any_value(), 0..12),
+            lim in prop::option::of(any_value()),
+            w in 0u32..2000,
+        ) {
+            let mut f = frame("Robust <&>", "x (%)", "y (V)");
+            f.width_px = w;
+            f.height_px = w / 2;
+            f.y.min = lim;
+            let labels: Vec<String> = (0..v.len()).map(|i| i.to_string()).collect();
+            let mut outputs = vec![grouped_bars(&f, &labels, &[("a".into(), v.clone())])];
+            let strip: Vec<StripPoint> = v.iter().map(|&y| StripPoint { label: "u".into(), y, outlier: y > 0.0 }).collect();
+            outputs.push(string_strip(&f, &strip, v.first().copied().unwrap_or(f64::NAN)));
+            let band: Vec<BandPoint> = v.windows(2).map(|p| BandPoint { x: p[0], y: p[1], low: p[1] - 1.0, high: p[1] + 1.0 }).collect();
+            let th = [Threshold { y: v.last().copied().unwrap_or(0.0), label: "t".into() }];
+            outputs.push(band_series(&f, &[("s".into(), band)], &th, &[]));
+            let pts: Vec<ScatterPoint> = v.windows(2).map(|p| ScatterPoint { x: p[0], y: p[1], label: "p".into(), flagged: p[0] < 0.0 }).collect();
+            let curve: Vec<(f64, f64)> = v.iter().map(|&x| (x, -x)).collect();
+            outputs.push(scatter_with_curve(&f, &pts, &curve, "c", "r"));
+            for svg in outputs {
+                check(&svg, &f);
+                let doc = roxmltree::Document::parse(&svg).unwrap();
+                for a in doc.descendants().flat_map(|n| n.attributes()) {
+                    let v = a.value();
+                    prop_assert!(!v.contains("NaN") && !v.contains("inf"), "{}={}", a.name(), v);
+                }
+            }
+        }
+    }
+}

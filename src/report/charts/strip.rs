@@ -82,10 +82,6 @@ pub fn string_strip(frame: &ChartFrame, points: &[StripPoint], median: f64) -> S
     let digits = c.y_decimals + 1;
 
     c.begin_marks();
-    if median_ok {
-        let text = format!("median {}", fixed(median, digits));
-        c.reference_line(median, &text, MEDIAN_DASH, "median");
-    }
     let mut labels = Vec::new();
     for (i, p) in points.iter().enumerate().filter(|(_, p)| p.y.is_finite()) {
         let (px, py) = (category(&c.x, i).0, c.y.map(p.y));
@@ -98,6 +94,10 @@ pub fn string_strip(frame: &ChartFrame, points: &[StripPoint], median: f64) -> S
         }
     }
     c.end_marks();
+    if median_ok {
+        let text = format!("median {}", fixed(median, digits));
+        c.reference_line(median, &text, MEDIAN_DASH, "median");
+    }
     // Outlier labels sit outside the clip so a label near the edge stays readable.
     for (px, py, text) in labels {
         c.label(px + 7.0, py + 4.0, "start", &text, "outlier");
