@@ -117,17 +117,7 @@ pub fn band_series(
                 attrs! {"class" => format!("band series-{i}"), "points" => points(&outline), "fill" => url.as_str(), "stroke" => "none"},
             );
             let line: Vec<(f64, f64)> = run.iter().map(|p| (c.x.map(p.x), c.y.map(p.y))).collect();
-            let class = format!("series-line series-{i}");
-            match dash {
-                Some(d) => c.svg.empty(
-                    "polyline",
-                    attrs! {"class" => class, "points" => points(&line), "fill" => "none", "stroke" => colour, "stroke-width" => "1.5", "stroke-dasharray" => d},
-                ),
-                None => c.svg.empty(
-                    "polyline",
-                    attrs! {"class" => class, "points" => points(&line), "fill" => "none", "stroke" => colour, "stroke-width" => "1.5"},
-                ),
-            }
+            c.polyline(&line, colour, dash, &format!("series-line series-{i}"));
             for (p, &(px, py)) in run.iter().zip(&line) {
                 let (xd, yd) = (c.x_decimals + 1, c.y_decimals + 1);
                 let tip = format!(
@@ -152,7 +142,7 @@ pub fn band_series(
     for t in lines {
         c.reference_line(t.y, &t.label, "2 3", "threshold");
     }
-    c.finish(frame)
+    c.finish()
 }
 
 #[cfg(test)]

@@ -98,7 +98,7 @@ pub fn grouped_bars(
         }
     }
     c.end_marks();
-    c.finish(frame)
+    c.finish()
 }
 
 #[cfg(test)]

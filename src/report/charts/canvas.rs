@@ -3,7 +3,7 @@
 //! region for the marks, and the "no data" note.
 
 use super::scale::{self, Domain, Scale};
-use super::svg::{attrs, fixed, Svg};
+use super::svg::{attrs, fixed, Svg, Val};
 use super::{ChartFrame, PALETTE};
 
 pub(crate) const INK: &str = "#333333";
@@ -295,6 +295,7 @@ impl Canvas {
         );
         c.legend(&plan.legend, &legend_pos);
         c.axes(&yd.ticks, &x_ticks, matches!(plan.x, XPlan::Categories(_)));
+        c.axis_labels(&f.x.label, &f.y.label);
         c
     }
 
@@ -380,7 +381,7 @@ impl Canvas {
                 );
             }
             if let Some(dash) = s.line {
-                self.line(x, y, x + 18.0, y, s.colour, dash, "legend-line");
+                self.polyline(&[(x, y), (x + 18.0, y)], s.colour, dash, "legend-line");
             }
             if let Some(shape) = s.marker {
                 self.marker(shape, x + 9.0, y, s.colour, "legend-marker", None);
@@ -427,7 +428,7 @@ impl Canvas {
         self.svg.close("g");
     }
 
-    /// Writes both axis labels; called from [`Canvas::begin`] via the frame.
+    /// Writes both axis labels, with their units as the caller wrote them.
     fn axis_labels(&mut self, frame_x: &str, frame_y: &str) {
         let a = self.area;
         let cx = (a.left + a.right) / 2.0;
@@ -458,28 +459,20 @@ impl Canvas {
         self.svg.close("g");
     }
 
-    /// A straight line in pixel coordinates.
-    #[allow(clippy::too_many_arguments)]
-    pub fn line(
-        &mut self,
-        x1: f64,
-        y1: f64,
-        x2: f64,
-        y2: f64,
-        colour: &str,
-        dash: Option<&str>,
-        class: &str,
-    ) {
-        match dash {
-            Some(d) => self.svg.empty(
-                "line",
-                attrs! {"class" => class, "x1" => x1, "y1" => y1, "x2" => x2, "y2" => y2, "stroke" => colour, "stroke-width" => "1.5", "stroke-dasharray" => d},
-            ),
-            None => self.svg.empty(
-                "line",
-                attrs! {"class" => class, "x1" => x1, "y1" => y1, "x2" => x2, "y2" => y2, "stroke" => colour, "stroke-width" => "1.5"},
-            ),
+    /// A line through pixel points, solid or with `dash` (an SVG dash array);
+    /// every line of every chart goes through here.
+    pub fn polyline(&mut self, pts: &[(f64, f64)], colour: &str, dash: Option<&str>, class: &str) {
+        let mut a: Vec<(&str, Val)> = vec![
+            ("class", class.into()),
+            ("points", points(pts).into()),
+            ("fill", "none".into()),
+            ("stroke", colour.into()),
+            ("stroke-width", "1.5".into()),
+        ];
+        if let Some(d) = dash {
+            a.push(("stroke-dasharray", d.into()));
         }
+        self.svg.empty("polyline", &a);
     }
 
     /// A full-width horizontal reference line at data value `v`, labelled at
@@ -490,7 +483,7 @@ impl Canvas {
             return;
         }
         let (a, py) = (self.area, self.y.map(v));
-        self.line(a.left, py, a.right, py, INK, Some(dash), class);
+        self.polyline(&[(a.left, py), (a.right, py)], INK, Some(dash), class);
         // Above the line, unless that would leave the plot at the top.
         let ly = if py - 16.0 < a.top {
             py + 13.0
@@ -563,7 +556,7 @@ impl Canvas {
                 .into(),
             )],
         };
-        let mut all: Vec<(&str, super::svg::Val)> = vec![("class", class.into())];
+        let mut all: Vec<(&str, Val)> = vec![("class", class.into())];
         all.extend(a);
         if shape == Shape::Cross {
             all.extend([
@@ -588,9 +581,8 @@ impl Canvas {
         }
     }
 
-    /// Axis labels, the "no data" note, and the closing tag.
-    pub fn finish(mut self, frame: &ChartFrame) -> String {
-        self.axis_labels(&frame.x.label, &frame.y.label);
+    /// The "no data" note when there was nothing to draw, and the closing tag.
+    pub fn finish(mut self) -> String {
         if !self.has_data {
             let a = self.area;
             self.svg.text(

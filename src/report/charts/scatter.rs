@@ -135,10 +135,7 @@ pub fn scatter_with_curve(
             "polygon",
             attrs! {"class" => "region", "points" => points(&outline), "fill" => url, "stroke" => "none"},
         );
-        c.svg.empty(
-            "polyline",
-            attrs! {"class" => "curve", "points" => points(&px), "fill" => "none", "stroke" => INK, "stroke-width" => "1.5"},
-        );
+        c.polyline(&px, INK, None, "curve");
     }
     let mut labels = Vec::new();
     let (xd, yd) = (c.x_decimals + 1, c.y_decimals + 1);
@@ -177,7 +174,7 @@ pub fn scatter_with_curve(
     for (px, py, text) in labels {
         c.label(px + 7.0, py - 5.0, "start", text, "flagged");
     }
-    c.finish(frame)
+    c.finish()
 }
 
 #[cfg(test)]

@@ -102,7 +102,7 @@ pub fn string_strip(frame: &ChartFrame, points: &[StripPoint], median: f64) -> S
     for (px, py, text) in labels {
         c.label(px + 7.0, py + 4.0, "start", &text, "outlier");
     }
-    c.finish(frame)
+    c.finish()
 }
 
 const MEDIAN_DASH: &str = "6 3";
