@@ -9,6 +9,7 @@
 pub mod correct;
 pub mod electrolyte;
 pub mod profile;
+pub mod report;
 pub mod rules;
 pub mod safety;
 pub mod settle;
