@@ -1,0 +1,295 @@
+//! `restvolt settle`: the rested voltage from a few readings taken during one rest.
+
+use super::check::{load_rules, OneFormat};
+use super::{output, CliError, CmdResult};
+use crate::correct::{assess, After, Reading, Setup};
+use crate::profile::store::ProfileStore;
+use crate::settle::{self, RelaxationModel, RestAfter, SettleOptions};
+use crate::units::{self, Hours, Volts};
+use clap::{Args, ValueEnum};
+use serde::Serialize;
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+/// Direction of the rest, as typed.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum SettleAfterArg {
+    /// The rest follows a charge: the voltage falls
+    Charge,
+    /// The rest follows a discharge: the voltage recovers
+    Discharge,
+}
+
+/// Arguments of `restvolt settle`.
+#[derive(Debug, Args)]
+#[command(after_help = "Examples:
+  restvolt settle demo-data/rest-series.csv --after charge --temp 18C
+  restvolt settle --reading 20m=12.93 --reading 40m=12.85 --reading 1h=12.80 --reading 2h=12.74 --after charge
+
+The CSV has `minutes` or `hours` (elapsed since the charge or discharge ended)
+or `taken_at` timestamps with --ended-at, a `volts` column, and optional
+`temp_c` or `temp_f`.")]
+pub struct SettleArgs {
+    /// CSV of readings during one rest (`-` for standard input)
+    pub file: Option<PathBuf>,
+    /// A hand-typed reading ELAPSED=VOLTS, e.g. 30m=12.93 (repeat)
+    #[arg(long = "reading", value_name = "ELAPSED=VOLTS")]
+    pub readings: Vec<String>,
+    /// When the charge or discharge ended, for timestamped files: 2026-11-30 14:05
+    #[arg(long, value_name = "TIME")]
+    pub ended_at: Option<String>,
+    /// Profile id
+    #[arg(long, default_value = "flooded-automotive")]
+    pub profile: String,
+    /// Cells in series [default: the profile's]
+    #[arg(long)]
+    pub cells: Option<u32>,
+    /// What the rest follows (checks the curve moves the right way)
+    #[arg(long, value_enum)]
+    pub after: Option<SettleAfterArg>,
+    /// Battery temperature with its unit (else the file's temperatures, else 25 °C assumed)
+    #[arg(long, allow_hyphen_values = true)]
+    pub temp: Option<String>,
+    /// Meter DC-volts accuracy as PERCENT%+COUNTS
+    #[arg(long, default_value = "0.5%+2")]
+    pub meter: String,
+    /// Meter display resolution in volts
+    #[arg(long, default_value = "0.01")]
+    pub resolution: String,
+    /// Rules overrides (TOML)
+    #[arg(long, value_name = "FILE")]
+    pub rules: Option<PathBuf>,
+    /// Output format
+    #[arg(long, value_enum, default_value = "text")]
+    pub format: OneFormat,
+}
+
+#[derive(Serialize)]
+struct SettleJson<'a> {
+    schema: &'static str,
+    profile: &'a str,
+    cells: u32,
+    rested_volts: f64,
+    rested_interval_volts: [f64; 2],
+    model: RelaxationModel,
+    settling_rate_mv_per_h: f64,
+    finite_difference_rate_mv_per_h: f64,
+    settling_limit_mv_per_h: f64,
+    settled: bool,
+    settled_at: Option<String>,
+    settled_after_hours: Option<f64>,
+    soc_percent: f64,
+    soc_interval_percent: [f64; 2],
+    temperature_celsius: f64,
+    fits: &'a [settle::ModelFit],
+    notes: &'a [String],
+}
+
+fn parse_time(s: &str) -> Result<chrono::NaiveDateTime, CliError> {
+    let t = s.trim();
+    chrono::DateTime::parse_from_rfc3339(t)
+        .map(|d| d.naive_local())
+        .or_else(|_| chrono::NaiveDateTime::parse_from_str(t, "%Y-%m-%d %H:%M"))
+        .or_else(|_| chrono::NaiveDateTime::parse_from_str(t, "%Y-%m-%dT%H:%M"))
+        .or_else(|_| chrono::NaiveDateTime::parse_from_str(t, "%Y-%m-%d %H:%M:%S"))
+        .map_err(|_| {
+            CliError::usage(format!(
+                "--ended-at: '{t}' is not a time: expected YYYY-MM-DD HH:MM or RFC 3339"
+            ))
+        })
+}
+
+/// Run `restvolt settle`.
+pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
+    let profile = store.get(&args.profile).map_err(CliError::usage)?;
+    let rules = load_rules(&args.rules)?;
+    let ended_at = args.ended_at.as_deref().map(parse_time).transpose()?;
+    let mut readings = Vec::new();
+    if let Some(path) = &args.file {
+        let name = path.display().to_string();
+        let r = if path.as_os_str() == "-" {
+            settle::read_rest_csv(std::io::stdin().lock(), "<stdin>", ended_at)
+        } else {
+            let f =
+                std::fs::File::open(path).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
+            settle::read_rest_csv(std::io::BufReader::new(f), &name, ended_at)
+        };
+        readings = r.map_err(CliError::usage)?;
+    }
+    let mut points = settle::points(&readings);
+    for r in &args.readings {
+        points.push(
+            settle::parse_reading_arg(r).map_err(|e| CliError::usage(format!("--reading: {e}")))?,
+        );
+    }
+    if args.file.is_none() && args.readings.is_empty() {
+        return Err(CliError::usage(
+            "give a CSV file or --reading ELAPSED=VOLTS (at least three)",
+        ));
+    }
+    let mut setup_args = super::check::CheckArgs {
+        volts: None,
+        sg: None,
+        profile: args.profile.clone(),
+        cells: args.cells,
+        temp: args.temp.clone(),
+        rest: "unknown".into(),
+        after: super::check::AfterArg::Idle,
+        meter: args.meter.clone(),
+        resolution: args.resolution.clone(),
+        temp_uncertainty: None,
+        min_temp: None,
+        hydrometer_rule: super::check::HydroArg::Step,
+        float: false,
+        ambient: None,
+        rules: None,
+        format: OneFormat::Text,
+    };
+    let setup: Setup = super::check::setup_from(&setup_args)?;
+    setup_args.temp = None;
+    let temperature = match &args.temp {
+        Some(s) => {
+            Some(units::parse_temperature(s).map_err(|e| CliError::usage(format!("--temp: {e}")))?)
+        }
+        None => {
+            let ts: Vec<f64> = readings
+                .iter()
+                .filter_map(|r| r.temperature.map(|t| t.0))
+                .collect();
+            (!ts.is_empty())
+                .then(|| crate::units::Celsius(ts.iter().sum::<f64>() / ts.len() as f64))
+        }
+    };
+    let opts = SettleOptions {
+        after: args.after.map(|a| match a {
+            SettleAfterArg::Charge => RestAfter::Charge,
+            SettleAfterArg::Discharge => RestAfter::Discharge,
+        }),
+        resolution: setup.resolution,
+        target_rest: Hours(profile.preferred_rest_hours()),
+        settling_limit_mv_per_h: profile.spec.rest.settling_limit_mv_per_h.value,
+    };
+    let analysis = settle::analyse(&points, &opts).map_err(CliError::fail)?;
+    let fit = analysis.chosen_fit();
+    let cells = args.cells.unwrap_or(profile.cells());
+    let at = |v: f64| {
+        assess(
+            profile,
+            &Reading {
+                volts: Some(Volts(v)),
+                cells: Some(cells),
+                temperature,
+                rest: Some(Hours(profile.preferred_rest_hours())),
+                after: After::Idle,
+                ..Reading::default()
+            },
+            &setup,
+            &rules,
+        )
+        .map_err(CliError::usage)
+    };
+    let mid = at(fit.rested_volts.0)?;
+    let lo = at(fit.rested_interval_volts.0 .0)?;
+    let hi = at(fit.rested_interval_volts.1 .0)?;
+    let soc_interval = [lo.soc_interval_percent[0], hi.soc_interval_percent[1]];
+    let last_elapsed = points.iter().map(|p| p.elapsed.0).fold(0.0, f64::max);
+    let settled_at = fit.settled_at_elapsed.and_then(|h| {
+        ended_at.map(|e| {
+            (e + Hours(h.0).to_duration())
+                .format("%Y-%m-%d %H:%M")
+                .to_string()
+        })
+    });
+    let doc = SettleJson {
+        schema: "restvolt.settle/1",
+        profile: profile.id(),
+        cells,
+        rested_volts: fit.rested_volts.0,
+        rested_interval_volts: [
+            fit.rested_interval_volts.0 .0,
+            fit.rested_interval_volts.1 .0,
+        ],
+        model: fit.model,
+        settling_rate_mv_per_h: fit.rate_at_last_mv_per_h,
+        finite_difference_rate_mv_per_h: analysis.finite_difference_rate_mv_per_h,
+        settling_limit_mv_per_h: opts.settling_limit_mv_per_h,
+        settled: analysis.settled,
+        settled_at,
+        settled_after_hours: fit.settled_at_elapsed.map(|h| h.0),
+        soc_percent: mid.soc_percent,
+        soc_interval_percent: soc_interval,
+        temperature_celsius: mid.temperature_celsius,
+        fits: &analysis.fits,
+        notes: &analysis.notes,
+    };
+    let text = match args.format {
+        OneFormat::Json => serde_json::to_string_pretty(&doc).map_err(CliError::fail)? + "\n",
+        OneFormat::Text => {
+            let mut s = String::new();
+            let _ = writeln!(
+                s,
+                "{} readings over {:.1} h; profile {} ({} cells)",
+                points.len(),
+                last_elapsed,
+                profile.id(),
+                cells
+            );
+            for f in &analysis.fits {
+                let _ =
+                    writeln!(
+                    s,
+                    "  {:<12} rested {:.3} V (95 %: {:.3}–{:.3})  residual {:.1} mV  AICc {:.1}{}",
+                    f.model.to_string(),
+                    f.rested_volts.0,
+                    f.rested_interval_volts.0 .0,
+                    f.rested_interval_volts.1 .0,
+                    f.residual_sd_mv,
+                    f.aicc,
+                    if f.model == fit.model { "  <- chosen (lower AICc)" } else { "" }
+                );
+            }
+            for n in &analysis.notes {
+                let _ = writeln!(s, "  note: {n}");
+            }
+            let what = match fit.model {
+                RelaxationModel::SemiLog => {
+                    format!("at {:.0} h of rest", profile.preferred_rest_hours())
+                }
+                RelaxationModel::Exponential => "asymptote".to_string(),
+            };
+            let _ = writeln!(s, "Rested voltage  {:.3} V ({what})", fit.rested_volts.0);
+            let _ = writeln!(
+                s,
+                "Charge          {:.0} %  (95 %: {:.0}–{:.0} %)",
+                mid.soc_percent, soc_interval[0], soc_interval[1]
+            );
+            let _ = writeln!(
+                s,
+                "                {}",
+                super::check::gauge(mid.soc_percent, soc_interval)
+            );
+            let _ = writeln!(
+                s,
+                "Settling rate   {:+.1} mV/h at the last reading (last two readings: {:+.1} mV/h); limit {} mV/h",
+                fit.rate_at_last_mv_per_h, analysis.finite_difference_rate_mv_per_h, opts.settling_limit_mv_per_h
+            );
+            let verdict = if analysis.settled {
+                "settled: a rest reading now is trustworthy".to_string()
+            } else {
+                match (fit.settled_at_elapsed, &doc.settled_at) {
+                    (_, Some(at)) => format!("not yet settled; steady at about {at}"),
+                    (Some(h), None) => {
+                        format!("not yet settled; steady about {:.1} h after the event", h.0)
+                    }
+                    (None, None) => {
+                        "not yet settled, and not within 30 days by this model".to_string()
+                    }
+                }
+            };
+            let _ = writeln!(s, "Verdict         {verdict}");
+            s
+        }
+    };
+    output::emit(None, text.as_bytes(), &[])?;
+    Ok(0)
+}
