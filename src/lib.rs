@@ -8,6 +8,7 @@
 
 pub mod correct;
 pub mod electrolyte;
+pub mod fleet;
 pub mod profile;
 pub mod rules;
 pub mod safety;

@@ -12,7 +12,9 @@ use crate::units::{Hours, Millivolts};
 use serde::{Deserialize, Serialize};
 
 /// What happened to the unit before the reading.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Default, Serialize, Deserialize, PartialOrd, Ord, Hash)]
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, Default, Serialize, Deserialize, PartialOrd, Ord, Hash,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum After {
     /// Taken off charge.
