@@ -9,6 +9,7 @@
 pub mod cli;
 pub mod correct;
 pub mod electrolyte;
+pub mod fleet;
 pub mod profile;
 pub mod report;
 pub mod rules;

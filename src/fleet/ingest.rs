@@ -1,0 +1,1301 @@
+//! Reading fleet CSV files into [`FleetRow`]s, one record at a time.
+//!
+//! # Format
+//! A header line, then one reading per record. Header names are matched
+//! case-insensitively after trimming; columns this reader does not know are
+//! ignored and listed once in [`IngestStats::unknown_columns`] and a notice.
+//!
+//! | column | required | meaning |
+//! |---|---|---|
+//! | `unit_id` | yes | the unit (cell, monobloc or battery) |
+//! | `taken_at` | yes | RFC 3339 (`2024-03-01T08:30:00Z`, `…+02:00`), converted to UTC; or local `YYYY-MM-DD HH:MM`, `YYYY-MM-DDTHH:MM`, with `:SS` (and a fraction) allowed, kept as written |
+//! | `volts` | one of `volts`/`sg` | rest voltage across the whole unit |
+//! | `sg` | one of `volts`/`sg` | raw hydrometer reading(s): one per cell separated by `;`, or one mean value |
+//! | `profile` | unless a default is given | profile id (matched in lower case) |
+//! | `site`, `string` | no | where the unit is and which series string |
+//! | `position` | no | whole number, place in the string |
+//! | `cells` | no | cells in series in the unit, 1–400 |
+//! | `temp_c` or `temp_f` | no (not both) | electrolyte or case temperature |
+//! | `rest_h` | no | hours since the last charge or discharge (also `40m`, `1h30m`); empty = unknown |
+//! | `after` | no | `charge`, `discharge`, `idle`, `float`; empty = unknown |
+//! | `ohmic_mohm`, `baseline_mohm` | no | measured internal ohmic value and its baseline |
+//! | `note` | no | free text |
+//! | `float_current_a`, `ambient_c` | no | for float readings |
+//!
+//! The delimiter (comma, semicolon or tab) is detected from the header line
+//! unless given. A UTF-8 byte-order mark and CRLF line ends are accepted. A
+//! decimal comma (`12,41`) is read in semicolon- and tab-delimited files (and in
+//! a quoted field of a comma-delimited one). In a semicolon-delimited file a
+//! per-cell SG list separated by `;` must be quoted: `"1,265;1,270;1,262"`.
+//!
+//! Mixing the two timestamp kinds in one file mixes UTC and local clock time:
+//! the reader does not know the site's time zone, so it cannot reconcile them.
+//!
+//! # Errors and rejects
+//! A problem with the whole file (encoding, header, I/O) is an [`IngestError`]
+//! with the file name and line. A problem with one record is a [`Rejected`]
+//! naming the file, the line and the column, and reading goes on. Every record
+//! read is either accepted or rejected: `rows_read = rows_accepted +
+//! rows_rejected`. Records whose fields are all empty (spreadsheets export them)
+//! are skipped and counted in a notice, not read.
+//!
+//! Text that is not UTF-8 (UTF-16 from some spreadsheet exports, or Latin-1 /
+//! Windows-1252) is refused rather than guessed: the file must be re-saved as
+//! UTF-8. Rows before the first undecodable line have already been delivered.
+//!
+//! # Memory
+//! One `csv::ByteRecord` is reused for every record; memory does not grow with
+//! the number of records. The record buffer grows to the longest record seen,
+//! and a physical line longer than [`MAX_LINE_BYTES`] stops the file with an
+//! error, so a file without line breaks cannot exhaust memory. Names that repeat
+//! (unit, profile, site, string) are shared through small per-file caches, which
+//! is why those fields are `Arc<str>`.
+
+use crate::correct::rest::After;
+use crate::units::{
+    parse_decimal, parse_duration, Amperes, Celsius, Hours, Milliohms, SpecificGravity, Volts,
+};
+use chrono::{NaiveDate, NaiveDateTime, NaiveTime};
+use serde::{Serialize, Serializer};
+use std::collections::HashSet;
+use std::fmt::{self, Write as _};
+use std::io::{self, Read};
+use std::sync::Arc;
+
+/// Longest field accepted, in bytes; a longer field rejects its record.
+pub const MAX_FIELD_BYTES: usize = 64 * 1024;
+/// Longest physical line, in bytes; a longer one stops the file (no way to resynchronise).
+pub const MAX_LINE_BYTES: u64 = 16 * 1024 * 1024;
+/// Rest times above this (10 years) are taken as typing errors.
+pub const MAX_REST_HOURS: f64 = 10.0 * 365.25 * 24.0;
+/// Unit voltages beyond ±this are not a lead-acid unit or string.
+pub const MAX_ABS_VOLTS: f64 = 1000.0;
+/// Plausible electrolyte/ambient temperature range, °C.
+pub const TEMPERATURE_RANGE_C: (f64, f64) = (-50.0, 80.0);
+/// Plausible raw specific gravity range of sulfuric-acid electrolyte.
+pub const SG_RANGE: (f64, f64) = (1.0, 1.4);
+
+/// Entries a name cache holds before it is emptied, so that a column of
+/// all-distinct values (one reading per unit) cannot grow it without bound.
+const INTERN_CAP: usize = 1 << 16;
+
+/// Where a record came from.
+#[derive(Clone, Debug, PartialEq, Eq, Hash)]
+pub struct SourceRef {
+    /// The input's name as given by the caller (a path, or `-` for stdin).
+    pub file: Arc<str>,
+    /// 1-based physical line on which the record starts.
+    pub line: u64,
+}
+
+impl fmt::Display for SourceRef {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}:{}", self.file, self.line)
+    }
+}
+
+impl Serialize for SourceRef {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_str(self)
+    }
+}
+
+fn ser_arc<S: Serializer>(v: &Arc<str>, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(v)
+}
+
+fn ser_opt_arc<S: Serializer>(v: &Option<Arc<str>>, s: S) -> Result<S::Ok, S::Error> {
+    match v {
+        Some(v) => s.serialize_some(&**v),
+        None => s.serialize_none(),
+    }
+}
+
+/// One accepted reading. Values are as read: no temperature correction, no
+/// plausibility judgement beyond the format checks listed in the module doc.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FleetRow {
+    /// File and line of the record.
+    pub source: SourceRef,
+    /// The unit's id (shared between readings of the same unit).
+    #[serde(serialize_with = "ser_arc")]
+    pub unit_id: Arc<str>,
+    /// When the reading was taken: UTC for RFC 3339 input, local clock time for
+    /// the `YYYY-MM-DD HH:MM` forms (see the module doc).
+    pub taken_at: NaiveDateTime,
+    /// The profile id: the record's value, or the caller's default.
+    #[serde(serialize_with = "ser_arc")]
+    pub profile: Arc<str>,
+    /// Rest voltage across the unit. Zero and negative values are kept: they
+    /// are evidence of a bad connection, which the analysis diagnoses.
+    pub volts: Option<Volts>,
+    /// Raw hydrometer readings (not temperature-corrected): one per cell, or one mean.
+    pub sg: Vec<SpecificGravity>,
+    /// Site name.
+    #[serde(serialize_with = "ser_opt_arc")]
+    pub site: Option<Arc<str>>,
+    /// Series string name.
+    #[serde(serialize_with = "ser_opt_arc")]
+    pub string: Option<Arc<str>>,
+    /// Position in the string.
+    pub position: Option<u32>,
+    /// Cells in series, when the record gives it.
+    pub cells: Option<u32>,
+    /// Temperature (from `temp_c`, or `temp_f` converted).
+    pub temperature: Option<Celsius>,
+    /// Time since the last charge or discharge; `None` when unknown.
+    pub rest: Option<Hours>,
+    /// What happened before the reading.
+    pub after: After,
+    /// Measured ohmic value.
+    pub ohmic: Option<Milliohms>,
+    /// Baseline ohmic value of the same unit.
+    pub baseline_ohmic: Option<Milliohms>,
+    /// Free text.
+    pub note: Option<String>,
+    /// Float current, for float readings.
+    pub float_current: Option<Amperes>,
+    /// Ambient temperature, for float readings.
+    pub ambient: Option<Celsius>,
+}
+
+/// A record that was not accepted, and why.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize)]
+pub struct Rejected {
+    /// The input's name.
+    pub file: String,
+    /// 1-based physical line on which the record starts.
+    pub line: u64,
+    /// What was wrong, naming the column(s) and what was expected.
+    pub reason: String,
+}
+
+impl fmt::Display for Rejected {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}:{}: {}", self.file, self.line, self.reason)
+    }
+}
+
+/// How to read.
+#[derive(Clone, Debug, Default)]
+pub struct IngestOptions {
+    /// Profile id for records without one (and for files without a `profile` column).
+    pub default_profile: Option<String>,
+    /// Field delimiter; detected from the header line when `None`.
+    pub delimiter: Option<u8>,
+    /// When given, a record naming another profile is rejected with the nearest known id.
+    pub known_profiles: Option<Vec<String>>,
+    /// When given, a record taken after this instant is rejected. Compare like with
+    /// like: RFC 3339 times become UTC, local times stay local.
+    pub now: Option<NaiveDateTime>,
+}
+
+/// What a run read.
+#[derive(Clone, Debug, Default, PartialEq, Serialize)]
+pub struct IngestStats {
+    /// Records read (blank records excluded).
+    pub rows_read: u64,
+    /// Records passed to the sink.
+    pub rows_accepted: u64,
+    /// Records passed to the reject callback.
+    pub rows_rejected: u64,
+    /// Header names that were ignored, as written.
+    pub unknown_columns: Vec<String>,
+    /// Things the user should know that are not errors.
+    pub notices: Vec<String>,
+}
+
+impl IngestStats {
+    /// Add another file's counts and notices to these.
+    pub fn merge(&mut self, other: IngestStats) {
+        self.rows_read += other.rows_read;
+        self.rows_accepted += other.rows_accepted;
+        self.rows_rejected += other.rows_rejected;
+        for c in other.unknown_columns {
+            if !self.unknown_columns.contains(&c) {
+                self.unknown_columns.push(c);
+            }
+        }
+        self.notices.extend(other.notices);
+    }
+}
+
+/// A whole-file problem: nothing more can be read from this input.
+#[derive(Debug, thiserror::Error)]
+pub enum IngestError {
+    /// The input could not be read.
+    #[error("{file}:{line}: read error: {source}")]
+    Io {
+        /// Input name.
+        file: String,
+        /// Line reached.
+        line: u64,
+        /// The system's error.
+        source: io::Error,
+    },
+    /// The text is not UTF-8.
+    #[error("{file}:{line}: {what}; re-save the file as UTF-8 (in a spreadsheet: CSV UTF-8) and read it again")]
+    Encoding {
+        /// Input name.
+        file: String,
+        /// Line of the first undecodable byte.
+        line: u64,
+        /// What was found.
+        what: String,
+    },
+    /// No bytes at all, or only blank lines.
+    #[error(
+        "{file}: the file is empty: expected a header line such as unit_id,taken_at,volts,profile"
+    )]
+    Empty {
+        /// Input name.
+        file: String,
+    },
+    /// The first line is data, not column names.
+    #[error("{file}:{line}: the first line is not a header (found '{found}'): expected column names such as unit_id,taken_at,volts,profile")]
+    NoHeader {
+        /// Input name.
+        file: String,
+        /// Line of the first record.
+        line: u64,
+        /// The start of that line.
+        found: String,
+    },
+    /// A required column is absent.
+    #[error("{file}:{line}: missing required column `{column}`{hint}")]
+    MissingColumn {
+        /// Input name.
+        file: String,
+        /// Header line.
+        line: u64,
+        /// The column (or alternatives) required.
+        column: String,
+        /// A suggestion, starting with a separator, or empty.
+        hint: String,
+    },
+    /// Two header names are the same after trimming and case folding.
+    #[error("{file}:{line}: column `{column}` appears twice in the header (fields {first} and {second})")]
+    DuplicateColumn {
+        /// Input name.
+        file: String,
+        /// Header line.
+        line: u64,
+        /// The name, normalised.
+        column: String,
+        /// 1-based field number of the first.
+        first: usize,
+        /// 1-based field number of the second.
+        second: usize,
+    },
+    /// Two columns that exclude each other are both present.
+    #[error("{file}:{line}: columns `{a}` and `{b}` are both present: give the temperature in one unit only")]
+    ConflictingColumns {
+        /// Input name.
+        file: String,
+        /// Header line.
+        line: u64,
+        /// One column.
+        a: String,
+        /// The other.
+        b: String,
+    },
+    /// A physical line is longer than [`MAX_LINE_BYTES`].
+    #[error("{file}:{line}: a line is longer than {limit} bytes: this is not a readings file (or its line ends are missing)")]
+    LineTooLong {
+        /// Input name.
+        file: String,
+        /// Line on which the long record starts.
+        line: u64,
+        /// The limit in bytes.
+        limit: u64,
+    },
+    /// The CSV parser gave up.
+    #[error("{file}:{line}: {message}")]
+    Csv {
+        /// Input name.
+        file: String,
+        /// Line reached.
+        line: u64,
+        /// The parser's message.
+        message: String,
+    },
+}
+
+/// Open a named input: `-` is standard input, anything else a file path.
+pub fn open_input(name: &str) -> Result<Box<dyn Read>, IngestError> {
+    if name == "-" {
+        return Ok(Box::new(io::stdin().lock()));
+    }
+    std::fs::File::open(name)
+        .map(|f| Box::new(f) as Box<dyn Read>)
+        .map_err(|source| IngestError::Io {
+            file: name.to_string(),
+            line: 0,
+            source,
+        })
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Col {
+    UnitId,
+    TakenAt,
+    Profile,
+    Volts,
+    Sg,
+    Site,
+    String,
+    Position,
+    Cells,
+    TempC,
+    TempF,
+    RestH,
+    After,
+    Ohmic,
+    Baseline,
+    Note,
+    FloatCurrent,
+    Ambient,
+}
+
+const COLUMNS: [(Col, &str); 18] = [
+    (Col::UnitId, "unit_id"),
+    (Col::TakenAt, "taken_at"),
+    (Col::Profile, "profile"),
+    (Col::Volts, "volts"),
+    (Col::Sg, "sg"),
+    (Col::Site, "site"),
+    (Col::String, "string"),
+    (Col::Position, "position"),
+    (Col::Cells, "cells"),
+    (Col::TempC, "temp_c"),
+    (Col::TempF, "temp_f"),
+    (Col::RestH, "rest_h"),
+    (Col::After, "after"),
+    (Col::Ohmic, "ohmic_mohm"),
+    (Col::Baseline, "baseline_mohm"),
+    (Col::Note, "note"),
+    (Col::FloatCurrent, "float_current_a"),
+    (Col::Ambient, "ambient_c"),
+];
+
+fn col_name(c: Col) -> &'static str {
+    COLUMNS[c as usize].1
+}
+
+/// Counts bytes since the last line end and fails past the limit, so that the
+/// CSV reader's record buffer cannot grow without bound.
+struct LineGuard<R> {
+    inner: R,
+    run: u64,
+    tripped: bool,
+}
+
+impl<R: Read> Read for LineGuard<R> {
+    fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
+        let n = self.inner.read(out)?;
+        let chunk = &out[..n];
+        match chunk.iter().rposition(|&b| b == b'\n' || b == b'\r') {
+            Some(i) => self.run = (n - i - 1) as u64,
+            None => self.run += n as u64,
+        }
+        if self.run > MAX_LINE_BYTES {
+            self.tripped = true;
+            return Err(io::Error::new(io::ErrorKind::InvalidData, "line too long"));
+        }
+        Ok(n)
+    }
+}
+
+/// Shares repeated names. Emptied when full so its size stays bounded.
+#[derive(Default)]
+struct Interner {
+    set: HashSet<Arc<str>>,
+    last: Option<Arc<str>>,
+}
+
+impl Interner {
+    fn get(&mut self, s: &str) -> Arc<str> {
+        if let Some(last) = &self.last {
+            if **last == *s {
+                return last.clone();
+            }
+        }
+        let a = match self.set.get(s) {
+            Some(a) => a.clone(),
+            None => {
+                if self.set.len() >= INTERN_CAP {
+                    self.set.clear();
+                }
+                let a: Arc<str> = Arc::from(s);
+                self.set.insert(a.clone());
+                a
+            }
+        };
+        self.last = Some(a.clone());
+        a
+    }
+}
+
+/// Choose the delimiter that occurs most often outside quotes in the header line.
+fn detect_delimiter(header: &[u8]) -> u8 {
+    let mut counts = [0usize; 3];
+    let mut quoted = false;
+    for &b in header {
+        match b {
+            b'"' => quoted = !quoted,
+            b'\n' | b'\r' if !quoted => break,
+            b',' if !quoted => counts[0] += 1,
+            b';' if !quoted => counts[1] += 1,
+            b'\t' if !quoted => counts[2] += 1,
+            _ => {}
+        }
+    }
+    let best = (0..3).max_by_key(|&i| (counts[i], 3 - i)).unwrap_or(0);
+    [b',', b';', b'\t'][best]
+}
+
+/// Validate a record as UTF-8 (one pass over its bytes); on failure, say
+/// which field and which byte, with a guess at the encoding.
+fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
+    if std::str::from_utf8(rec.as_slice()).is_ok() {
+        return Ok(());
+    }
+    for (i, f) in rec.iter().enumerate() {
+        if let Err(e) = std::str::from_utf8(f) {
+            let at = e.valid_up_to();
+            let byte = f.get(at).copied().unwrap_or(0);
+            let place = match names.get(i) {
+                Some(n) => format!("column `{n}`"),
+                None => format!("field {}", i + 1),
+            };
+            let guess = if byte >= 0x80 {
+                " (it looks like Latin-1 or Windows-1252, e.g. an accented letter or a degree sign)"
+            } else {
+                ""
+            };
+            return Err(format!(
+                "the text is not valid UTF-8: byte 0x{byte:02X} in {place}{guess}"
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Shorten a value for a message.
+fn show(s: &str) -> String {
+    const MAX: usize = 40;
+    match s.char_indices().nth(MAX) {
+        Some((i, _)) => format!("{}…", &s[..i]),
+        None => s.to_string(),
+    }
+}
+
+fn problem(problems: &mut String, col: Col, args: fmt::Arguments<'_>) {
+    if !problems.is_empty() {
+        problems.push_str("; ");
+    }
+    let _ = write!(problems, "column `{}`: {}", col_name(col), args);
+}
+
+/// Parse `YYYY-MM-DD[T ]HH:MM[:SS[.fff]][Z|±HH:MM|±HHMM]`. With an offset the
+/// time is converted to UTC; without one it is returned as written.
+pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
+    let b = text.as_bytes();
+    if b.len() < 16 {
+        return None;
+    }
+    let num = |r: std::ops::Range<usize>| -> Option<u32> {
+        let mut v = 0u32;
+        for &c in b.get(r)? {
+            if !c.is_ascii_digit() {
+                return None;
+            }
+            v = v * 10 + u32::from(c - b'0');
+        }
+        Some(v)
+    };
+    if b[4] != b'-' || b[7] != b'-' || !matches!(b[10], b'T' | b't' | b' ') || b[13] != b':' {
+        return None;
+    }
+    let date = NaiveDate::from_ymd_opt(num(0..4)? as i32, num(5..7)?, num(8..10)?)?;
+    let (hour, minute) = (num(11..13)?, num(14..16)?);
+    let mut i = 16;
+    let mut second = 0;
+    let mut nano = 0u32;
+    if b.get(i) == Some(&b':') {
+        second = num(i + 1..i + 3)?;
+        i += 3;
+        if b.get(i) == Some(&b'.') {
+            i += 1;
+            let start = i;
+            let mut scale = 100_000_000u32;
+            while let Some(c) = b.get(i).filter(|c| c.is_ascii_digit()) {
+                nano += u32::from(c - b'0') * scale;
+                scale /= 10;
+                i += 1;
+            }
+            if i == start {
+                return None;
+            }
+        }
+    }
+    let time = NaiveTime::from_hms_nano_opt(hour, minute, second, nano)?;
+    let local = NaiveDateTime::new(date, time);
+    let rest = &b[i..];
+    let offset_minutes: i64 = match rest {
+        [] => return Some(local),
+        [b'Z' | b'z'] => 0,
+        [sign @ (b'+' | b'-'), ..] => {
+            let digits: Vec<u8> = rest[1..].iter().copied().filter(|&c| c != b':').collect();
+            if digits.len() != 4 || rest.len() - 1 - digits.len() > 1 {
+                return None;
+            }
+            let mut v = [0i64; 4];
+            for (k, c) in digits.iter().enumerate() {
+                if !c.is_ascii_digit() {
+                    return None;
+                }
+                v[k] = i64::from(c - b'0');
+            }
+            let (h, m) = (v[0] * 10 + v[1], v[2] * 10 + v[3]);
+            if h > 23 || m > 59 {
+                return None;
+            }
+            let total = h * 60 + m;
+            if *sign == b'-' {
+                -total
+            } else {
+                total
+            }
+        }
+        _ => return None,
+    };
+    local.checked_sub_signed(chrono::Duration::minutes(offset_minutes))
+}
+
+struct RowParser<'o> {
+    file: Arc<str>,
+    idx: [Option<usize>; COLUMNS.len()],
+    width: usize,
+    names: Vec<String>,
+    delimiter: u8,
+    opts: &'o IngestOptions,
+    default_profile: Option<Arc<str>>,
+    known: Option<HashSet<String>>,
+    units: Interner,
+    profiles: Interner,
+    sites: Interner,
+    strings: Interner,
+}
+
+fn field<'r>(rec: &'r csv::ByteRecord, i: Option<usize>) -> &'r str {
+    i.and_then(|i| rec.get(i))
+        .and_then(|b| std::str::from_utf8(b).ok())
+        .unwrap_or("")
+        .trim()
+}
+
+impl RowParser<'_> {
+    fn get<'r>(&self, rec: &'r csv::ByteRecord, c: Col) -> &'r str {
+        field(rec, self.idx[c as usize])
+    }
+
+    fn number(
+        &self,
+        rec: &csv::ByteRecord,
+        c: Col,
+        expected: &str,
+        problems: &mut String,
+    ) -> Option<f64> {
+        let raw = self.get(rec, c);
+        if raw.is_empty() {
+            return None;
+        }
+        match parse_decimal(raw, expected) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                problem(problems, c, format_args!("{e}"));
+                None
+            }
+        }
+    }
+
+    fn celsius(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Celsius> {
+        let v = self.number(rec, c, "degrees Celsius", problems)?;
+        let (lo, hi) = TEMPERATURE_RANGE_C;
+        if (lo..=hi).contains(&v) {
+            return Some(Celsius(v));
+        }
+        let as_c = Celsius::from_fahrenheit(v).0;
+        if (lo..=hi).contains(&as_c) {
+            problem(
+                problems,
+                c,
+                format_args!("{v} is implausible for °C: was it °F? (expected {lo} to {hi} °C; use a temp_f column for °F)"),
+            );
+        } else {
+            problem(
+                problems,
+                c,
+                format_args!("{v} °C is outside the plausible {lo} to {hi} °C"),
+            );
+        }
+        None
+    }
+
+    fn whole(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<u32> {
+        let raw = self.get(rec, c);
+        if raw.is_empty() {
+            return None;
+        }
+        match raw.parse::<u32>() {
+            Ok(v) => Some(v),
+            Err(_) => {
+                problem(
+                    problems,
+                    c,
+                    format_args!("'{}' is not a whole number ≥ 0", show(raw)),
+                );
+                None
+            }
+        }
+    }
+
+    fn ohms(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Milliohms> {
+        let v = self.number(rec, c, "milliohms", problems)?;
+        if v > 0.0 && v <= 100_000.0 {
+            Some(Milliohms(v))
+        } else {
+            problem(
+                problems,
+                c,
+                format_args!(
+                    "{v} mΩ is not a plausible ohmic value (expected above 0 and up to 100000 mΩ)"
+                ),
+            );
+            None
+        }
+    }
+
+    fn parse(
+        &mut self,
+        rec: &csv::ByteRecord,
+        line: u64,
+        problems: &mut String,
+    ) -> Option<FleetRow> {
+        problems.clear();
+        if rec.len() != self.width {
+            let name = |i: usize| self.names.get(i).map(String::as_str).unwrap_or("?");
+            let _ = if rec.len() < self.width {
+                write!(
+                    problems,
+                    "found {} fields where the header has {}: column `{}` and after are missing (truncated line?)",
+                    rec.len(),
+                    self.width,
+                    name(rec.len())
+                )
+            } else {
+                write!(
+                    problems,
+                    "found {} fields where the header has {}: extra fields after column `{}`",
+                    rec.len(),
+                    self.width,
+                    name(self.width - 1)
+                )
+            };
+            if self.delimiter == b';' && self.idx[Col::Sg as usize].is_some() {
+                problems.push_str(
+                    " (in a semicolon-delimited file an SG list separated by ';' must be quoted)",
+                );
+            }
+            return None;
+        }
+        for (i, f) in rec.iter().enumerate() {
+            if f.len() > MAX_FIELD_BYTES {
+                let _ = write!(
+                    problems,
+                    "column `{}`: field is {} bytes, over the {} KiB limit for one field",
+                    self.names.get(i).map(String::as_str).unwrap_or("?"),
+                    f.len(),
+                    MAX_FIELD_BYTES / 1024
+                );
+                return None;
+            }
+        }
+
+        let unit = self.get(rec, Col::UnitId);
+        if unit.is_empty() {
+            problem(
+                problems,
+                Col::UnitId,
+                format_args!("empty: every reading needs its unit"),
+            );
+        }
+
+        let raw_time = self.get(rec, Col::TakenAt);
+        let taken_at = match parse_timestamp(raw_time) {
+            Some(t) => {
+                if let Some(now) = self.opts.now.filter(|now| t > *now) {
+                    problem(
+                        problems,
+                        Col::TakenAt,
+                        format_args!("{t} is in the future (now is {now})"),
+                    );
+                }
+                Some(t)
+            }
+            None => {
+                problem(
+                    problems,
+                    Col::TakenAt,
+                    format_args!(
+                        "'{}' is not a timestamp (expected RFC 3339 like 2024-03-01T08:30:00Z, or local YYYY-MM-DD HH:MM[:SS])",
+                        show(raw_time)
+                    ),
+                );
+                None
+            }
+        };
+
+        let raw_profile = self.get(rec, Col::Profile);
+        let profile = if raw_profile.is_empty() {
+            if self.default_profile.is_none() {
+                problem(
+                    problems,
+                    Col::Profile,
+                    format_args!("empty and no default profile was given"),
+                );
+            }
+            self.default_profile.clone()
+        } else if raw_profile.bytes().any(|b| b.is_ascii_uppercase()) {
+            Some(self.profiles.get(&raw_profile.to_ascii_lowercase()))
+        } else {
+            Some(self.profiles.get(raw_profile))
+        };
+        if let (Some(p), Some(known)) = (&profile, &self.known) {
+            if !known.contains(&**p) {
+                let near = known
+                    .iter()
+                    .map(|k| (strsim::damerau_levenshtein(p, k), k))
+                    .filter(|(d, k)| *d <= 3.max(k.len() / 3))
+                    .min();
+                match near {
+                    Some((_, k)) => problem(
+                        problems,
+                        Col::Profile,
+                        format_args!("unknown profile '{}' (did you mean '{k}'?)", show(p)),
+                    ),
+                    None => problem(
+                        problems,
+                        Col::Profile,
+                        format_args!("unknown profile '{}'", show(p)),
+                    ),
+                }
+            }
+        }
+
+        let volts = self.number(rec, Col::Volts, "volts", problems).and_then(|v| {
+            if v.abs() <= MAX_ABS_VOLTS {
+                Some(Volts(v))
+            } else {
+                problem(
+                    problems,
+                    Col::Volts,
+                    format_args!("{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"),
+                );
+                None
+            }
+        });
+
+        let raw_sg = self.get(rec, Col::Sg);
+        let mut sg = Vec::new();
+        if !raw_sg.is_empty() {
+            let (lo, hi) = SG_RANGE;
+            for (k, part) in raw_sg.split(';').enumerate() {
+                let part = part.trim();
+                match parse_decimal(part, "a specific gravity like 1.265") {
+                    Ok(v) if (lo..=hi).contains(&v) => sg.push(SpecificGravity(v)),
+                    Ok(v) if (lo * 1000.0..=hi * 1000.0).contains(&v) => problem(
+                        problems,
+                        Col::Sg,
+                        format_args!("value {} is {v}: write specific gravity as a ratio ({:.3}), not in points", k + 1, v / 1000.0),
+                    ),
+                    Ok(v) => problem(
+                        problems,
+                        Col::Sg,
+                        format_args!("value {} is {v}, outside the {lo:.3}–{hi:.3} of sulfuric-acid electrolyte", k + 1),
+                    ),
+                    Err(e) => problem(problems, Col::Sg, format_args!("value {}: {e}", k + 1)),
+                }
+            }
+        }
+        if volts.is_none() && raw_sg.is_empty() && self.get(rec, Col::Volts).is_empty() {
+            problem(
+                problems,
+                Col::Volts,
+                format_args!(
+                    "empty, and `sg` is empty too: a reading needs a voltage or a hydrometer value"
+                ),
+            );
+        }
+
+        let cells = self.whole(rec, Col::Cells, problems).and_then(|n| {
+            if (1..=400).contains(&n) {
+                Some(n)
+            } else {
+                problem(
+                    problems,
+                    Col::Cells,
+                    format_args!("{n} cells: expected 1–400"),
+                );
+                None
+            }
+        });
+        if let Some(n) = cells {
+            if sg.len() > 1 && sg.len() != n as usize {
+                problem(
+                    problems,
+                    Col::Sg,
+                    format_args!(
+                        "{} values for {n} cells: give one per cell, or one mean value",
+                        sg.len()
+                    ),
+                );
+            }
+        }
+
+        let position = self.whole(rec, Col::Position, problems);
+        let temperature = if self.idx[Col::TempF as usize].is_some() {
+            self.number(rec, Col::TempF, "degrees Fahrenheit", problems)
+                .and_then(|f| {
+                    let c = Celsius::from_fahrenheit(f);
+                    let (lo, hi) = TEMPERATURE_RANGE_C;
+                    if (lo..=hi).contains(&c.0) {
+                        Some(c)
+                    } else {
+                        problem(
+                            problems,
+                            Col::TempF,
+                            format_args!(
+                                "{f} °F is outside the plausible {:.0} to {:.0} °F",
+                                Celsius(lo).to_fahrenheit(),
+                                Celsius(hi).to_fahrenheit()
+                            ),
+                        );
+                        None
+                    }
+                })
+        } else {
+            self.celsius(rec, Col::TempC, problems)
+        };
+        let ambient = self.celsius(rec, Col::Ambient, problems);
+
+        let raw_rest = self.get(rec, Col::RestH);
+        let rest = if raw_rest.is_empty() {
+            None
+        } else {
+            let hours = parse_decimal(raw_rest, "hours")
+                .map(|h| Some(Hours(h)))
+                .or_else(|_| parse_duration(raw_rest).map_err(|e| e.to_string()));
+            match hours {
+                Ok(Some(h)) if h.0 < 0.0 => {
+                    problem(problems, Col::RestH, format_args!("{} h is negative: rest counts from the end of the last charge or discharge", h.0));
+                    None
+                }
+                Ok(Some(h)) if h.0 > MAX_REST_HOURS => {
+                    problem(
+                        problems,
+                        Col::RestH,
+                        format_args!("{} h is more than 10 years", h.0),
+                    );
+                    None
+                }
+                Ok(h) => h,
+                Err(_) => {
+                    problem(
+                        problems,
+                        Col::RestH,
+                        format_args!("'{}' is not a rest time (expected hours like 6 or 1.5, or 40m, 1h30m; empty if unknown)", show(raw_rest)),
+                    );
+                    None
+                }
+            }
+        };
+
+        let raw_after = self.get(rec, Col::After);
+        let after = [
+            ("charge", After::Charge),
+            ("discharge", After::Discharge),
+            ("idle", After::Idle),
+            ("float", After::Float),
+            ("unknown", After::Unknown),
+            ("", After::Unknown),
+        ]
+        .iter()
+        .find(|(w, _)| raw_after.eq_ignore_ascii_case(w))
+        .map(|(_, a)| *a)
+        .unwrap_or_else(|| {
+            problem(
+                problems,
+                Col::After,
+                format_args!(
+                    "'{}' is not one of charge, discharge, idle, float (empty = unknown)",
+                    show(raw_after)
+                ),
+            );
+            After::Unknown
+        });
+
+        let ohmic = self.ohms(rec, Col::Ohmic, problems);
+        let baseline_ohmic = self.ohms(rec, Col::Baseline, problems);
+        let float_current = self
+            .number(rec, Col::FloatCurrent, "amperes", problems)
+            .and_then(|a| {
+                if a.abs() <= 10_000.0 {
+                    Some(Amperes(a))
+                } else {
+                    problem(
+                        problems,
+                        Col::FloatCurrent,
+                        format_args!("{a} A is absurd for a float current"),
+                    );
+                    None
+                }
+            });
+
+        if !problems.is_empty() {
+            return None;
+        }
+        let (Some(taken_at), Some(profile)) = (taken_at, profile) else {
+            return None;
+        };
+        let opt_name = |i: &mut Interner, s: &str| (!s.is_empty()).then(|| i.get(s));
+        let (raw_site, raw_string) = (self.get(rec, Col::Site), self.get(rec, Col::String));
+        let site = opt_name(&mut self.sites, raw_site);
+        let string = opt_name(&mut self.strings, raw_string);
+        let note = self.get(rec, Col::Note);
+        Some(FleetRow {
+            source: SourceRef {
+                file: self.file.clone(),
+                line,
+            },
+            unit_id: self.units.get(unit),
+            taken_at,
+            profile,
+            volts,
+            sg,
+            site,
+            string,
+            position,
+            cells,
+            temperature,
+            rest,
+            after,
+            ohmic,
+            baseline_ohmic,
+            note: (!note.is_empty()).then(|| note.to_string()),
+            float_current,
+            ambient,
+        })
+    }
+}
+
+/// Read one input. Streaming: calls `sink` for every accepted record and
+/// `reject` for every rejected one; memory does not grow with the number of
+/// records. `name` labels the input in every message.
+pub fn ingest<R: Read>(
+    name: &str,
+    reader: R,
+    opts: &IngestOptions,
+    sink: &mut dyn FnMut(FleetRow),
+    reject: &mut dyn FnMut(Rejected),
+) -> Result<IngestStats, IngestError> {
+    let mut reader = reader;
+    let io_err = |line: u64| {
+        move |source: io::Error| IngestError::Io {
+            file: name.to_string(),
+            line,
+            source,
+        }
+    };
+
+    // Read up to the first line end so the encoding and delimiter can be
+    // judged before the CSV reader sees anything.
+    let mut prefix = Vec::with_capacity(8192);
+    let mut chunk = [0u8; 8192];
+    loop {
+        let n = match reader.read(&mut chunk) {
+            Ok(n) => n,
+            Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
+            Err(e) => return Err(io_err(1)(e)),
+        };
+        if n == 0 {
+            break;
+        }
+        let had_line_end = chunk[..n].contains(&b'\n');
+        prefix.extend_from_slice(&chunk[..n]);
+        if had_line_end || prefix.len() >= 64 * 1024 {
+            break;
+        }
+    }
+    let encoding = |what: &str| IngestError::Encoding {
+        file: name.to_string(),
+        line: 1,
+        what: what.to_string(),
+    };
+    if prefix.starts_with(&[0xFF, 0xFE]) {
+        return Err(encoding(
+            "the file is UTF-16 (little-endian byte-order mark)",
+        ));
+    }
+    if prefix.starts_with(&[0xFE, 0xFF]) {
+        return Err(encoding("the file is UTF-16 (big-endian byte-order mark)"));
+    }
+    if prefix.contains(&0) {
+        return Err(encoding(
+            "the file contains NUL bytes: it is UTF-16 without a byte-order mark, or not text",
+        ));
+    }
+    let start = if prefix.starts_with(&[0xEF, 0xBB, 0xBF]) {
+        3
+    } else {
+        0
+    };
+    let delimiter = opts
+        .delimiter
+        .unwrap_or_else(|| detect_delimiter(&prefix[start..]));
+    let guard = LineGuard {
+        inner: io::Cursor::new(prefix).chain(reader),
+        run: 0,
+        tripped: false,
+    };
+    // The BOM is skipped by consuming it from the guarded stream before parsing.
+    let mut guarded = guard;
+    if start > 0 {
+        let mut bom = [0u8; 3];
+        guarded.read_exact(&mut bom).map_err(io_err(1))?;
+    }
+    let mut rdr = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(false)
+        .flexible(true)
+        .buffer_capacity(64 * 1024)
+        .from_reader(guarded);
+
+    let file: Arc<str> = Arc::from(name);
+    let mut rec = csv::ByteRecord::new();
+    let csv_err = |e: csv::Error, tripped: bool, line: u64| -> IngestError {
+        let at = e.position().map_or(line, |p| p.line());
+        if tripped {
+            return IngestError::LineTooLong {
+                file: name.to_string(),
+                line: at,
+                limit: MAX_LINE_BYTES,
+            };
+        }
+        match e.into_kind() {
+            csv::ErrorKind::Io(source) => IngestError::Io {
+                file: name.to_string(),
+                line: at,
+                source,
+            },
+            other => IngestError::Csv {
+                file: name.to_string(),
+                line: at,
+                message: format!("{:?}", other),
+            },
+        }
+    };
+
+    // Header.
+    let got = rdr
+        .read_byte_record(&mut rec)
+        .map_err(|e| csv_err(e, rdr.get_ref().tripped, 1))?;
+    if !got
+        || rec
+            .iter()
+            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
+    {
+        return Err(IngestError::Empty {
+            file: name.to_string(),
+        });
+    }
+    let header_line = rec.position().map_or(1, |p| p.line());
+    check_utf8(&rec, &[]).map_err(|what| IngestError::Encoding {
+        file: name.to_string(),
+        line: header_line,
+        what,
+    })?;
+    let names: Vec<String> = rec
+        .iter()
+        .map(|f| String::from_utf8_lossy(f).trim().to_string())
+        .collect();
+    let mut idx = [None; COLUMNS.len()];
+    let mut unknown = Vec::new();
+    for (i, n) in names.iter().enumerate() {
+        let lower = n.to_ascii_lowercase();
+        match COLUMNS.iter().find(|(_, c)| *c == lower) {
+            Some((col, cname)) => {
+                if let Some(first) = idx[*col as usize] {
+                    return Err(IngestError::DuplicateColumn {
+                        file: name.to_string(),
+                        line: header_line,
+                        column: cname.to_string(),
+                        first: first + 1,
+                        second: i + 1,
+                    });
+                }
+                idx[*col as usize] = Some(i);
+            }
+            None if n.is_empty() => unknown.push(format!("(unnamed field {})", i + 1)),
+            None => unknown.push(n.clone()),
+        }
+    }
+    let has = |c: Col| idx[c as usize].is_some();
+    if !COLUMNS.iter().any(|(c, _)| has(*c)) {
+        let found = show(&names.join(&(delimiter as char).to_string()));
+        return Err(IngestError::NoHeader {
+            file: name.to_string(),
+            line: header_line,
+            found,
+        });
+    }
+    let default_profile = opts
+        .default_profile
+        .as_deref()
+        .map(str::trim)
+        .filter(|p| !p.is_empty())
+        .map(|p| Arc::<str>::from(p.to_ascii_lowercase()));
+    let missing = |column: &str| {
+        let near = unknown
+            .iter()
+            .map(|u| {
+                (
+                    strsim::damerau_levenshtein(&u.to_ascii_lowercase(), column),
+                    u,
+                )
+            })
+            .filter(|(d, _)| *d <= 3)
+            .min();
+        IngestError::MissingColumn {
+            file: name.to_string(),
+            line: header_line,
+            column: column.to_string(),
+            hint: match near {
+                Some((_, u)) => format!(" (found `{u}`: did you mean `{column}`?)"),
+                None if delimiter != b',' || names.len() > 1 => String::new(),
+                None => " (is the delimiter right? the header has one field)".to_string(),
+            },
+        }
+    };
+    for c in [Col::UnitId, Col::TakenAt] {
+        if !has(c) {
+            return Err(missing(col_name(c)));
+        }
+    }
+    if !has(Col::Volts) && !has(Col::Sg) {
+        return Err(missing("volts` or `sg"));
+    }
+    if !has(Col::Profile) && default_profile.is_none() {
+        return Err(IngestError::MissingColumn {
+            file: name.to_string(),
+            line: header_line,
+            column: "profile".to_string(),
+            hint: " (or give a default profile)".to_string(),
+        });
+    }
+    if has(Col::TempC) && has(Col::TempF) {
+        return Err(IngestError::ConflictingColumns {
+            file: name.to_string(),
+            line: header_line,
+            a: "temp_c".to_string(),
+            b: "temp_f".to_string(),
+        });
+    }
+
+    let mut stats = IngestStats {
+        unknown_columns: unknown.clone(),
+        ..IngestStats::default()
+    };
+    if !unknown.is_empty() {
+        stats.notices.push(format!(
+            "{name}: ignoring column{} {}",
+            if unknown.len() == 1 { "" } else { "s" },
+            unknown
+                .iter()
+                .map(|u| format!("`{u}`"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ));
+    }
+    let mut parser = RowParser {
+        file: file.clone(),
+        width: names.len(),
+        names,
+        idx,
+        delimiter,
+        opts,
+        default_profile,
+        known: opts
+            .known_profiles
+            .as_ref()
+            .map(|k| k.iter().cloned().collect()),
+        units: Interner::default(),
+        profiles: Interner::default(),
+        sites: Interner::default(),
+        strings: Interner::default(),
+    };
+
+    let mut problems = String::new();
+    let mut blank = 0u64;
+    let mut line = header_line;
+    loop {
+        match rdr.read_byte_record(&mut rec) {
+            Ok(true) => {}
+            Ok(false) => break,
+            Err(e) => return Err(csv_err(e, rdr.get_ref().tripped, line)),
+        }
+        line = rec.position().map_or(line + 1, |p| p.line());
+        if rec
+            .iter()
+            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
+        {
+            blank += 1;
+            continue;
+        }
+        stats.rows_read += 1;
+        if let Err(what) = check_utf8(&rec, &parser.names) {
+            return Err(IngestError::Encoding {
+                file: name.to_string(),
+                line,
+                what,
+            });
+        }
+        match parser.parse(&rec, line, &mut problems) {
+            Some(row) => {
+                stats.rows_accepted += 1;
+                sink(row);
+            }
+            None => {
+                stats.rows_rejected += 1;
+                reject(Rejected {
+                    file: name.to_string(),
+                    line,
+                    reason: std::mem::take(&mut problems),
+                });
+            }
+        }
+    }
+    if blank > 0 {
+        stats.notices.push(format!(
+            "{name}: skipped {blank} record{} with every field empty",
+            if blank == 1 { "" } else { "s" }
+        ));
+    }
+    if stats.rows_read == 0 {
+        stats.notices.push(format!(
+            "{name}: the header is there but no readings follow"
+        ));
+    }
+    Ok(stats)
+}
