@@ -4,5 +4,7 @@
 //! per-record rejects; [`generate`] writes a reproducible synthetic fleet in
 //! the same format, with a documented mix of faults, for demos and tests.
 
+pub mod analysis;
 pub mod generate;
 pub mod ingest;
+pub mod summary;

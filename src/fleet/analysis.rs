@@ -1,0 +1,697 @@
+//! Fleet diagnosis: fold readings into per-unit summaries, then judge every
+//! unit (latest reading, history, peers, hydrometer, ohmic, cold and heat) and
+//! rank the fleet.
+
+use super::ingest::{FleetRow, Rejected};
+use super::summary::UnitSummary;
+use crate::correct::{assess, Action, After, FlagCode, Reading, Reason, RestStatus, Setup};
+use crate::profile::store::ProfileStore;
+use crate::profile::Profile;
+use crate::rules::{RuleId, Rules};
+use crate::units::Celsius;
+use serde::Serialize;
+use std::collections::BTreeMap;
+use std::sync::Arc;
+
+/// Schema id of the fleet JSON report.
+pub const FLEET_SCHEMA: &str = "restvolt.fleet/1";
+
+/// Fleet-wide settings.
+#[derive(Clone, Debug, Default)]
+pub struct FleetSettings {
+    /// Measurement setup for every reading.
+    pub setup: Setup,
+    /// Rules in effect.
+    pub rules: Rules,
+    /// Coldest temperature expected (for freeze risk), besides the coldest seen.
+    pub min_temperature: Option<Celsius>,
+}
+
+/// The accumulating state of a fleet analysis: per-unit summaries by id.
+#[derive(Clone, Debug, Default)]
+pub struct FleetState {
+    /// Per-unit summaries.
+    pub units: BTreeMap<Arc<str>, UnitSummary>,
+    /// Rejected rows (capped), and the total count.
+    pub rejected: Vec<Rejected>,
+    /// Total rejected, including those beyond the cap.
+    pub rejected_total: u64,
+    /// Rows read.
+    pub rows_read: u64,
+    /// Rows accepted.
+    pub rows_accepted: u64,
+    /// Notices from ingestion.
+    pub notices: Vec<String>,
+}
+
+/// Rejected rows kept for the report (the count is always exact).
+pub const REJECTED_CAP: usize = 1000;
+
+impl FleetState {
+    /// Fold one accepted row in.
+    pub fn add_row(&mut self, row: FleetRow, store: &ProfileStore, settings: &FleetSettings) {
+        let (soc, rested, short) = match store.get(&row.profile) {
+            Ok(p) => row_soc(p, &row, settings),
+            Err(_) => (None, false, false),
+        };
+        let ageing = row
+            .temperature
+            .map(|t| ageing_factor(t, settings.rules.get(RuleId::LifeHalving)));
+        self.units
+            .entry(row.unit_id.clone())
+            .or_default()
+            .add(row, soc, rested, short, ageing);
+    }
+
+    /// Record a rejected row.
+    pub fn add_rejected(&mut self, r: Rejected) {
+        self.rejected_total += 1;
+        if self.rejected.len() < REJECTED_CAP {
+            self.rejected.push(r);
+        }
+    }
+
+    /// Combine another partition's state into this one (associative, order-free).
+    pub fn merge(&mut self, other: FleetState) {
+        for (id, s) in other.units {
+            match self.units.get_mut(&id) {
+                Some(mine) => mine.merge(s),
+                None => {
+                    self.units.insert(id, s);
+                }
+            }
+        }
+        self.rejected_total += other.rejected_total;
+        self.rejected.extend(other.rejected);
+        self.rejected
+            .sort_by(|a, b| (&a.file, a.line, &a.reason).cmp(&(&b.file, b.line, &b.reason)));
+        self.rejected.truncate(REJECTED_CAP);
+        self.rows_read += other.rows_read;
+        self.rows_accepted += other.rows_accepted;
+        for n in other.notices {
+            if !self.notices.contains(&n) {
+                self.notices.push(n);
+            }
+        }
+        self.notices.sort();
+    }
+}
+
+/// Heat-ageing factor at a temperature: 2^((T − 25)/N) above 25 °C, 1 below.
+pub fn ageing_factor(t: Celsius, halving_c: f64) -> f64 {
+    if t.0 <= 25.0 || halving_c <= 0.0 {
+        1.0
+    } else {
+        2f64.powf((t.0 - 25.0) / halving_c)
+    }
+}
+
+/// State of charge of a row for the history, with whether it was rested.
+fn row_soc(p: &Profile, row: &FleetRow, settings: &FleetSettings) -> (Option<f64>, bool, bool) {
+    if row.after == After::Float {
+        return (None, false, false);
+    }
+    let short =
+        matches!(row.rest, Some(h) if h.0 < p.minimum_rest_hours()) && row.after != After::Idle;
+    let rested = !short && (row.rest.is_some() || row.after == After::Idle);
+    let reading = to_reading(row);
+    match assess(p, &reading, &settings.setup, &settings.rules) {
+        Ok(a)
+            if !a.has(FlagCode::CheckConnection)
+                && !a.has(FlagCode::WrongCellCount)
+                && !a.has(FlagCode::SuspectShortedCell) =>
+        {
+            (Some(a.soc_percent), rested, short)
+        }
+        _ => (None, false, short),
+    }
+}
+
+fn to_reading(row: &FleetRow) -> Reading {
+    Reading {
+        volts: row.volts,
+        sg: row.sg.clone(),
+        cells: row.cells,
+        temperature: row.temperature,
+        rest: row.rest,
+        after: row.after,
+    }
+}
+
+/// One reason in the fleet report.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FleetReason {
+    /// Rule id.
+    pub rule: String,
+    /// What this reason calls for.
+    pub action: Action,
+    /// Evidence.
+    pub detail: String,
+    /// Rule source.
+    pub source: String,
+}
+
+impl From<&Reason> for FleetReason {
+    fn from(r: &Reason) -> FleetReason {
+        FleetReason {
+            rule: r.rule.clone(),
+            action: r.action,
+            detail: r.detail.clone(),
+            source: r.source.clone(),
+        }
+    }
+}
+
+/// One unit's diagnosis.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct UnitReport {
+    /// Rank (1 = most urgent).
+    pub rank: usize,
+    /// Unit id.
+    pub unit_id: String,
+    /// Site.
+    pub site: Option<String>,
+    /// Series string.
+    pub string: Option<String>,
+    /// Position in the string.
+    pub position: Option<u32>,
+    /// Profile id.
+    pub profile: String,
+    /// Recommended action.
+    pub action: Action,
+    /// State of charge at the latest reading (None for float-only units).
+    pub soc_percent: Option<f64>,
+    /// Its 95 % interval.
+    pub soc_interval_percent: Option<[f64; 2]>,
+    /// Latest rest voltage at 25 °C per cell.
+    pub ocv_per_cell_25c_volts: Option<f64>,
+    /// Flag codes.
+    pub flags: Vec<String>,
+    /// Every reason, most urgent first.
+    pub reasons: Vec<FleetReason>,
+    /// Readings of this unit.
+    pub readings: u64,
+    /// Latest reading's time.
+    pub latest_at: String,
+    /// Trend of rested state of charge, % per 30 days.
+    pub trend_percent_per_30_days: Option<f64>,
+    /// Rested readings behind the trend.
+    pub trend_readings: i64,
+    /// Days below the recharge threshold in the current stretch (within the kept history).
+    pub days_below_recharge: Option<f64>,
+    /// Peer deviation of the rested per-cell voltage, mV.
+    pub peer_deviation_mv: Option<f64>,
+    /// Robust z-score among peers.
+    pub peer_z: Option<f64>,
+    /// Ohmic value above baseline, %.
+    pub ohmic_rise_percent: Option<f64>,
+    /// Coldest temperature seen or expected, °C.
+    pub coldest_celsius: Option<f64>,
+    /// Freezing point at the latest state of charge.
+    pub freezing_point_celsius: Option<f64>,
+    /// Mean heat-ageing factor (1 = ageing as at 25 °C).
+    pub heat_ageing_factor: Option<f64>,
+    /// History of rested state of charge (time, soc) for charts, oldest first.
+    #[serde(skip)]
+    pub history: Vec<(chrono::NaiveDateTime, f64, [f64; 2])>,
+    /// Latest temperature.
+    #[serde(skip)]
+    pub latest_temperature: Option<f64>,
+}
+
+/// The whole fleet report.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FleetReport {
+    /// Schema id.
+    pub schema: &'static str,
+    /// Summary counts.
+    pub summary: Summary,
+    /// Units, most urgent first.
+    pub units: Vec<UnitReport>,
+    /// Rejected rows (first [`REJECTED_CAP`]).
+    pub rejected: Vec<Rejected>,
+    /// Notices from ingestion.
+    pub notices: Vec<String>,
+}
+
+/// Summary counts.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Summary {
+    /// Rows read.
+    pub rows_read: u64,
+    /// Rows accepted.
+    pub rows_accepted: u64,
+    /// Rows rejected.
+    pub rows_rejected: u64,
+    /// Units.
+    pub units: usize,
+    /// Units by action, in precedence order.
+    pub by_action: BTreeMap<String, usize>,
+    /// Units by site, then action.
+    pub by_site: BTreeMap<String, BTreeMap<String, usize>>,
+    /// Duplicate readings found.
+    pub duplicate_readings: u64,
+    /// Readings with too little rest.
+    pub short_rest_readings: u64,
+    /// First and last reading time.
+    pub period: Option<[String; 2]>,
+    /// Profiles used.
+    pub profiles: Vec<String>,
+}
+
+fn reason(action: Action, rule: RuleId, detail: String, rules: &Rules) -> FleetReason {
+    FleetReason {
+        rule: rule.id().to_string(),
+        action,
+        detail,
+        source: rules.source(rule),
+    }
+}
+
+struct Judged {
+    report: UnitReport,
+    peer_key: Option<(String, String)>,
+}
+
+/// Judge every unit and rank the fleet.
+pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings) -> FleetReport {
+    let rules = &settings.rules;
+    let mut judged: Vec<Judged> = state
+        .units
+        .iter()
+        .filter_map(|(id, s)| judge_unit(id, s, store, settings))
+        .collect();
+
+    // Peers: same string (else same site) and profile, rested latest readings.
+    let mut groups: BTreeMap<(String, String), Vec<(usize, f64)>> = BTreeMap::new();
+    for (i, j) in judged.iter().enumerate() {
+        if let (Some(k), Some(v)) = (&j.peer_key, j.report.ocv_per_cell_25c_volts) {
+            groups.entry(k.clone()).or_default().push((i, v));
+        }
+    }
+    for members in groups.values() {
+        if members.len() < 4 {
+            continue;
+        }
+        let mut vs: Vec<f64> = members.iter().map(|m| m.1).collect();
+        vs.sort_by(f64::total_cmp);
+        let median = median_sorted(&vs);
+        let mut dev: Vec<f64> = vs.iter().map(|v| (v - median).abs()).collect();
+        dev.sort_by(f64::total_cmp);
+        let mad = median_sorted(&dev).max(0.0005);
+        for (i, v) in members {
+            let z = 0.6745 * (v - median) / mad;
+            let delta_mv = (v - median) * 1000.0;
+            let r = &mut judged[*i].report;
+            r.peer_z = Some(round(z, 2));
+            r.peer_deviation_mv = Some(round(delta_mv, 1));
+            if z.abs() > rules.get(RuleId::PeerZ) && delta_mv.abs() >= rules.get(RuleId::PeerMinMv)
+            {
+                r.flags.push("peer-outlier".into());
+                r.reasons.push(reason(
+                    Action::CapacityTest,
+                    RuleId::PeerZ,
+                    format!(
+                        "{delta_mv:+.0} mV per cell from the median of {} peers (robust z {z:.1})",
+                        members.len()
+                    ),
+                    rules,
+                ));
+            }
+        }
+    }
+
+    for j in &mut judged {
+        j.report.reasons.sort_by_key(|r| r.action);
+        j.report.action = j
+            .report
+            .reasons
+            .first()
+            .map(|r| r.action)
+            .unwrap_or(Action::Serviceable);
+        j.report.flags.sort();
+        j.report.flags.dedup();
+    }
+    let mut units: Vec<UnitReport> = judged.into_iter().map(|j| j.report).collect();
+    units.sort_by(|a, b| {
+        a.action
+            .cmp(&b.action)
+            .then_with(|| {
+                let sa = a.soc_percent.unwrap_or(101.0);
+                let sb = b.soc_percent.unwrap_or(101.0);
+                sa.total_cmp(&sb)
+            })
+            .then_with(|| a.unit_id.cmp(&b.unit_id))
+    });
+    for (i, u) in units.iter_mut().enumerate() {
+        u.rank = i + 1;
+    }
+
+    let mut by_action: BTreeMap<String, usize> = BTreeMap::new();
+    let mut by_site: BTreeMap<String, BTreeMap<String, usize>> = BTreeMap::new();
+    for u in &units {
+        *by_action.entry(u.action.as_str().to_string()).or_default() += 1;
+        *by_site
+            .entry(u.site.clone().unwrap_or_else(|| "(no site)".into()))
+            .or_default()
+            .entry(u.action.as_str().to_string())
+            .or_default() += 1;
+    }
+    let mut first: Option<chrono::NaiveDateTime> = None;
+    let mut last: Option<chrono::NaiveDateTime> = None;
+    let mut profiles: Vec<String> = Vec::new();
+    for s in state.units.values() {
+        if let (Some(f), Some(l)) = (s.history.first(), s.history.last()) {
+            first = Some(first.map_or(f.taken_at, |x| x.min(f.taken_at)));
+            last = Some(last.map_or(l.taken_at, |x| x.max(l.taken_at)));
+            if !profiles.iter().any(|p| **p == *l.row.profile) {
+                profiles.push(l.row.profile.to_string());
+            }
+        }
+    }
+    profiles.sort();
+    FleetReport {
+        schema: FLEET_SCHEMA,
+        summary: Summary {
+            rows_read: state.rows_read,
+            rows_accepted: state.rows_accepted,
+            rows_rejected: state.rejected_total,
+            units: units.len(),
+            by_action,
+            by_site,
+            duplicate_readings: state.units.values().map(|s| s.duplicates).sum(),
+            short_rest_readings: state.units.values().map(|s| s.short_rest).sum(),
+            period: first.zip(last).map(|(f, l)| {
+                [
+                    f.format("%Y-%m-%d %H:%M").to_string(),
+                    l.format("%Y-%m-%d %H:%M").to_string(),
+                ]
+            }),
+            profiles,
+        },
+        units,
+        rejected: state.rejected.clone(),
+        notices: state.notices.clone(),
+    }
+}
+
+fn median_sorted(v: &[f64]) -> f64 {
+    let n = v.len();
+    if n == 0 {
+        return f64::NAN;
+    }
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+fn round(x: f64, places: i32) -> f64 {
+    let f = 10f64.powi(places);
+    (x * f).round() / f
+}
+
+fn judge_unit(
+    id: &str,
+    s: &UnitSummary,
+    store: &ProfileStore,
+    settings: &FleetSettings,
+) -> Option<Judged> {
+    let rules = &settings.rules;
+    let latest = s.latest()?;
+    let row = &latest.row;
+    let mut flags: Vec<String> = Vec::new();
+    let mut reasons: Vec<FleetReason> = Vec::new();
+    let profile = match store.get(&row.profile) {
+        Ok(p) => p,
+        Err(e) => {
+            return Some(Judged {
+                report: empty_report(
+                    id,
+                    row,
+                    s,
+                    Action::Remeasure,
+                    vec![FleetReason {
+                        rule: "unknown-profile".into(),
+                        action: Action::Remeasure,
+                        detail: e.to_string(),
+                        source: "restvolt profile store".into(),
+                    }],
+                ),
+                peer_key: None,
+            })
+        }
+    };
+    let coldest = [
+        s.coldest_milli_c.map(|c| c as f64 / 1000.0),
+        settings.min_temperature.map(|c| c.0),
+    ]
+    .into_iter()
+    .flatten()
+    .fold(None, |a: Option<f64>, b| Some(a.map_or(b, |a| a.min(b))));
+
+    // Latest reading, through the same corrector as `check`.
+    let mut setup = settings.setup;
+    setup.min_temperature = coldest.map(Celsius);
+    let mut soc = None;
+    let mut interval = None;
+    let mut ocv_cell = None;
+    let mut freezing = None;
+    if row.after == After::Float {
+        flags.push("on-float".into());
+        reasons.push(FleetReason {
+            rule: "on-float".into(),
+            action: Action::Serviceable,
+            detail: "the latest reading was taken on float charge: state of charge cannot be read from a float voltage; see the float section".into(),
+            source: "common practice: a float voltage is held by the charger, not by the electrolyte".into(),
+        });
+    } else {
+        match assess(profile, &to_reading(row), &setup, rules) {
+            Ok(a) => {
+                soc = Some(round(a.soc_percent, 1));
+                interval = Some([
+                    round(a.soc_interval_percent[0], 1),
+                    round(a.soc_interval_percent[1], 1),
+                ]);
+                let trusted = matches!(a.rest.status, RestStatus::Settled | RestStatus::Usable)
+                    && !a.has(FlagCode::CheckConnection)
+                    && !a.has(FlagCode::WrongCellCount)
+                    && !a.has(FlagCode::SuspectShortedCell);
+                if trusted {
+                    ocv_cell = a.ocv_per_cell_25c_volts;
+                }
+                freezing = a.freezing_point_celsius.map(|f| round(f, 1));
+                for f in &a.flags {
+                    flags.push(f.code.as_str().to_string());
+                }
+                for r in &a.reasons {
+                    reasons.push(r.into());
+                }
+            }
+            Err(e) => {
+                flags.push("unusable-reading".into());
+                reasons.push(FleetReason {
+                    rule: "unusable-reading".into(),
+                    action: Action::Remeasure,
+                    detail: e.to_string(),
+                    source: "restvolt corrector".into(),
+                });
+            }
+        }
+    }
+
+    // History rules.
+    let trend = s.trend_percent_per_30_days();
+    let expected = profile
+        .spec
+        .self_discharge
+        .soc_percent_per_30_days_at_25c
+        .value;
+    if let (Some(slope), true) = (trend, s.trend_n >= 3) {
+        if slope < -rules.get(RuleId::TrendFactor) * expected {
+            flags.push("fast-decline".into());
+            reasons.push(reason(
+                Action::CapacityTest,
+                RuleId::TrendFactor,
+                format!("rested charge falls {:.1} % per 30 days over {} readings; the profile expects about {expected} %", -slope, s.trend_n),
+                rules,
+            ));
+        }
+    }
+    let recharge_below = profile.spec.thresholds.recharge_below_soc_percent.value;
+    let mut days_below = None;
+    let rested: Vec<_> = s
+        .history
+        .iter()
+        .filter(|h| h.rested && h.soc_milli_percent.is_some())
+        .collect();
+    if let Some(last) = rested.last() {
+        if (last.soc_milli_percent.unwrap_or(0) as f64 / 1000.0) < recharge_below {
+            let start = rested
+                .iter()
+                .rev()
+                .take_while(|h| (h.soc_milli_percent.unwrap_or(0) as f64 / 1000.0) < recharge_below)
+                .last()
+                .map(|h| h.taken_at)
+                .unwrap_or(last.taken_at);
+            let days = (last.taken_at - start).num_minutes() as f64 / 1440.0;
+            days_below = Some(round(days, 1));
+            if days >= rules.get(RuleId::SulfationDays) {
+                flags.push("sulfation-risk".into());
+                reasons.push(reason(
+                    Action::RechargeNow,
+                    RuleId::SulfationDays,
+                    format!("below {recharge_below} % for {days:.0} days"),
+                    rules,
+                ));
+            }
+        }
+    }
+    if let Some(pc) = s
+        .history
+        .iter()
+        .rev()
+        .find(|h| h.after == After::Charge && h.rested && h.soc_milli_percent.is_some())
+    {
+        let pc_soc = pc.soc_milli_percent.unwrap_or(0) as f64 / 1000.0;
+        if pc_soc < rules.get(RuleId::PostChargeShortfall) {
+            flags.push("post-charge-shortfall".into());
+            reasons.push(reason(
+                Action::CapacityTest,
+                RuleId::PostChargeShortfall,
+                format!(
+                    "rested {pc_soc:.0} % after the charge of {}: sulfation or lost capacity",
+                    pc.taken_at.format("%Y-%m-%d")
+                ),
+                rules,
+            ));
+        }
+    }
+
+    // Ohmic value against the baseline (given, else the earliest seen).
+    let baseline = row
+        .baseline_ohmic
+        .map(|b| b.0)
+        .or(s.first_ohmic.map(|(_, bits)| f64::from_bits(bits)));
+    let mut ohmic_rise = None;
+    if let (Some(o), Some(b)) = (row.ohmic, baseline) {
+        if b > 0.0 {
+            let rise = (o.0 / b - 1.0) * 100.0;
+            ohmic_rise = Some(round(rise, 1));
+            if rise >= rules.get(RuleId::OhmicAct) {
+                flags.push("ohmic-rise".into());
+                reasons.push(reason(
+                    Action::CapacityTest,
+                    RuleId::OhmicAct,
+                    format!(
+                        "ohmic {:.2} mΩ is {rise:+.0} % over the baseline {b:.2} mΩ",
+                        o.0
+                    ),
+                    rules,
+                ));
+            } else if rise >= rules.get(RuleId::OhmicWarn) {
+                flags.push("ohmic-watch".into());
+                reasons.push(reason(
+                    Action::Serviceable,
+                    RuleId::OhmicWarn,
+                    format!(
+                        "ohmic {:.2} mΩ is {rise:+.0} % over the baseline {b:.2} mΩ: watch",
+                        o.0
+                    ),
+                    rules,
+                ));
+            }
+        }
+    }
+
+    let ageing = s.ageing_factor();
+    if let Some(a) = ageing {
+        if a > rules.get(RuleId::HeatAgeingWarn) {
+            flags.push("heat-ageing".into());
+            reasons.push(reason(
+                Action::CapacityTest,
+                RuleId::HeatAgeingWarn,
+                format!(
+                    "mean heat-ageing factor {a:.1}× (life halves per {} °C above 25 °C)",
+                    rules.get(RuleId::LifeHalving)
+                ),
+                rules,
+            ));
+        }
+    }
+
+    let history = s
+        .history
+        .iter()
+        .filter(|h| h.rested)
+        .filter_map(|h| {
+            let soc = h.soc_milli_percent? as f64 / 1000.0;
+            let i = assess(profile, &to_reading(&h.row), &settings.setup, rules)
+                .map(|a| a.soc_interval_percent)
+                .unwrap_or([soc, soc]);
+            Some((h.taken_at, soc, i))
+        })
+        .collect();
+    let peer_key = ocv_cell.map(|_| {
+        let group = match (&row.site, &row.string) {
+            (Some(site), Some(st)) => format!("{site}/{st}"),
+            (Some(site), None) => site.to_string(),
+            (None, Some(st)) => format!("/{st}"),
+            (None, None) => String::new(),
+        };
+        (group, row.profile.to_string())
+    });
+    let mut report = empty_report(id, row, s, Action::Serviceable, reasons);
+    report.soc_percent = soc;
+    report.soc_interval_percent = interval;
+    report.ocv_per_cell_25c_volts = ocv_cell.map(|v| round(v, 4));
+    report.flags = flags;
+    report.trend_percent_per_30_days = trend.map(|t| round(t, 2));
+    report.days_below_recharge = days_below;
+    report.ohmic_rise_percent = ohmic_rise;
+    report.coldest_celsius = coldest.map(|c| round(c, 1));
+    report.freezing_point_celsius = freezing;
+    report.heat_ageing_factor = ageing.map(|a| round(a, 2));
+    report.history = history;
+    Some(Judged {
+        report,
+        peer_key: peer_key.filter(|(g, _)| !g.is_empty()),
+    })
+}
+
+fn empty_report(
+    id: &str,
+    row: &FleetRow,
+    s: &UnitSummary,
+    action: Action,
+    reasons: Vec<FleetReason>,
+) -> UnitReport {
+    UnitReport {
+        rank: 0,
+        unit_id: id.to_string(),
+        site: row.site.as_ref().map(|x| x.to_string()),
+        string: row.string.as_ref().map(|x| x.to_string()),
+        position: row.position,
+        profile: row.profile.to_string(),
+        action,
+        soc_percent: None,
+        soc_interval_percent: None,
+        ocv_per_cell_25c_volts: None,
+        flags: Vec::new(),
+        reasons,
+        readings: s.readings,
+        latest_at: row.taken_at.format("%Y-%m-%d %H:%M").to_string(),
+        trend_percent_per_30_days: None,
+        trend_readings: s.trend_n,
+        days_below_recharge: None,
+        peer_deviation_mv: None,
+        peer_z: None,
+        ohmic_rise_percent: None,
+        coldest_celsius: None,
+        freezing_point_celsius: None,
+        heat_ageing_factor: None,
+        history: Vec::new(),
+        latest_temperature: row.temperature.map(|t| t.0),
+    }
+}
