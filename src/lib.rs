@@ -8,6 +8,7 @@
 
 pub mod correct;
 pub mod electrolyte;
+pub mod float;
 pub mod profile;
 pub mod report;
 pub mod rules;
