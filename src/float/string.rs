@@ -399,7 +399,7 @@ pub fn analyse_string(
          whatever charge the plates hold. ",
     );
     if fully_charged_on_float == Some(true) {
-        state_of_charge_note.push_str(&format!("Fully charged on float: {why}."));
+        state_of_charge_note.push_str(&format!("This string is fully charged on float: {why}."));
     } else {
         state_of_charge_note.push_str(&format!("Not shown fully charged: {why}. "));
         if rest_test_units.is_empty() {
