@@ -10,6 +10,7 @@ pub mod cli;
 pub mod correct;
 pub mod electrolyte;
 pub mod fleet;
+pub mod float;
 pub mod profile;
 pub mod report;
 pub mod rules;
