@@ -382,22 +382,75 @@ fn col_name(c: Col) -> &'static str {
     COLUMNS[c as usize].1
 }
 
-/// Counts bytes since the last line end and fails past the limit, so that the
-/// CSV reader's record buffer cannot grow without bound.
+/// Sits between the input and the CSV reader. It fails a physical line
+/// longer than [`MAX_LINE_BYTES`], so that the reader's record buffer cannot
+/// grow without bound, and it remembers where the line ends are, because the
+/// CSV reader reports the line where it *started looking* for a record (before
+/// skipped blank lines and the `\n` of a CRLF), not the record's own line.
 struct LineGuard<R> {
     inner: R,
+    /// Bytes since the last line end.
     run: u64,
     tripped: bool,
+    /// Bytes delivered so far.
+    offset: u64,
+    /// Offsets of `\n` bytes delivered but not yet behind a finished record:
+    /// at most the reader's read-ahead, so bounded.
+    pending: std::collections::VecDeque<u64>,
+    /// `\n` bytes behind finished records.
+    passed: u64,
+}
+
+impl<R> LineGuard<R> {
+    fn new(inner: R) -> Self {
+        LineGuard {
+            inner,
+            run: 0,
+            tripped: false,
+            offset: 0,
+            pending: std::collections::VecDeque::new(),
+            passed: 0,
+        }
+    }
+
+    /// The 1-based line on which a record that ended at byte `end` (exclusive,
+    /// terminator consumed or not) started, given the `\n` bytes inside it.
+    fn record_line(&mut self, end: u64, inner_newlines: u64) -> u64 {
+        let mut own_terminator = false;
+        while let Some(&o) = self.pending.front() {
+            if o >= end {
+                break;
+            }
+            self.pending.pop_front();
+            self.passed += 1;
+            own_terminator = o + 1 == end;
+        }
+        (1 + self.passed)
+            .saturating_sub(u64::from(own_terminator))
+            .saturating_sub(inner_newlines)
+            .max(1)
+    }
+
+    /// The line after the last line end delivered (where an overlong line starts).
+    fn current_line(&self) -> u64 {
+        1 + self.passed + self.pending.len() as u64
+    }
 }
 
 impl<R: Read> Read for LineGuard<R> {
     fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
         let n = self.inner.read(out)?;
         let chunk = &out[..n];
+        for (i, &b) in chunk.iter().enumerate() {
+            if b == b'\n' {
+                self.pending.push_back(self.offset + i as u64);
+            }
+        }
         match chunk.iter().rposition(|&b| b == b'\n' || b == b'\r') {
             Some(i) => self.run = (n - i - 1) as u64,
             None => self.run += n as u64,
         }
+        self.offset += n as u64;
         if self.run > MAX_LINE_BYTES {
             self.tripped = true;
             return Err(io::Error::new(io::ErrorKind::InvalidData, "line too long"));
@@ -497,6 +550,23 @@ fn problem(problems: &mut String, col: Col, args: fmt::Arguments<'_>) {
     let _ = write!(problems, "column `{}`: {}", col_name(col), args);
 }
 
+/// [`parse_decimal`] with an allocation-free fast path for plain numbers,
+/// which are nearly all of them.
+fn decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
+    if !raw.is_empty()
+        && raw
+            .bytes()
+            .all(|b| b.is_ascii_digit() || matches!(b, b'.' | b'-' | b'+'))
+    {
+        if let Ok(v) = raw.parse::<f64>() {
+            if v.is_finite() {
+                return Ok(v);
+            }
+        }
+    }
+    parse_decimal(raw, expected)
+}
+
 /// Parse `YYYY-MM-DD[T ]HH:MM[:SS[.fff]][Z|±HH:MM|±HHMM]`. With an offset the
 /// time is converted to UTC; without one it is returned as written.
 pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
@@ -545,27 +615,17 @@ pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
     let offset_minutes: i64 = match rest {
         [] => return Some(local),
         [b'Z' | b'z'] => 0,
-        [sign @ (b'+' | b'-'), ..] => {
-            let digits: Vec<u8> = rest[1..].iter().copied().filter(|&c| c != b':').collect();
-            if digits.len() != 4 || rest.len() - 1 - digits.len() > 1 {
-                return None;
-            }
-            let mut v = [0i64; 4];
-            for (k, c) in digits.iter().enumerate() {
-                if !c.is_ascii_digit() {
-                    return None;
-                }
-                v[k] = i64::from(c - b'0');
-            }
-            let (h, m) = (v[0] * 10 + v[1], v[2] * 10 + v[3]);
+        [sign @ (b'+' | b'-'), h1, h2, b':', m1, m2] | [sign @ (b'+' | b'-'), h1, h2, m1, m2] => {
+            let digit = |c: u8| c.is_ascii_digit().then(|| i64::from(c - b'0'));
+            let h = digit(*h1)? * 10 + digit(*h2)?;
+            let m = digit(*m1)? * 10 + digit(*m2)?;
             if h > 23 || m > 59 {
                 return None;
             }
-            let total = h * 60 + m;
             if *sign == b'-' {
-                -total
+                -(h * 60 + m)
             } else {
-                total
+                h * 60 + m
             }
         }
         _ => return None,
@@ -588,7 +648,7 @@ struct RowParser<'o> {
     strings: Interner,
 }
 
-fn field<'r>(rec: &'r csv::ByteRecord, i: Option<usize>) -> &'r str {
+fn field(rec: &csv::ByteRecord, i: Option<usize>) -> &str {
     i.and_then(|i| rec.get(i))
         .and_then(|b| std::str::from_utf8(b).ok())
         .unwrap_or("")
@@ -611,7 +671,7 @@ impl RowParser<'_> {
         if raw.is_empty() {
             return None;
         }
-        match parse_decimal(raw, expected) {
+        match decimal(raw, expected) {
             Ok(v) => Some(v),
             Err(e) => {
                 problem(problems, c, format_args!("{e}"));
@@ -813,7 +873,7 @@ impl RowParser<'_> {
             let (lo, hi) = SG_RANGE;
             for (k, part) in raw_sg.split(';').enumerate() {
                 let part = part.trim();
-                match parse_decimal(part, "a specific gravity like 1.265") {
+                match decimal(part, "a specific gravity like 1.265") {
                     Ok(v) if (lo..=hi).contains(&v) => sg.push(SpecificGravity(v)),
                     Ok(v) if (lo * 1000.0..=hi * 1000.0).contains(&v) => problem(
                         problems,
@@ -894,7 +954,7 @@ impl RowParser<'_> {
         let rest = if raw_rest.is_empty() {
             None
         } else {
-            let hours = parse_decimal(raw_rest, "hours")
+            let hours = decimal(raw_rest, "hours")
                 .map(|h| Some(Hours(h)))
                 .or_else(|_| parse_duration(raw_rest).map_err(|e| e.to_string()));
             match hours {
@@ -1000,6 +1060,12 @@ impl RowParser<'_> {
     }
 }
 
+fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteRecord) -> u64 {
+    let end = rdr.position().byte();
+    let inner = rec.as_slice().iter().filter(|&&b| b == b'\n').count() as u64;
+    rdr.get_mut().record_line(end, inner)
+}
+
 /// Read one input. Streaming: calls `sink` for every accepted record and
 /// `reject` for every rejected one; memory does not grow with the number of
 /// records. `name` labels the input in every message.
@@ -1064,17 +1130,10 @@ pub fn ingest<R: Read>(
     let delimiter = opts
         .delimiter
         .unwrap_or_else(|| detect_delimiter(&prefix[start..]));
-    let guard = LineGuard {
-        inner: io::Cursor::new(prefix).chain(reader),
-        run: 0,
-        tripped: false,
-    };
-    // The BOM is skipped by consuming it from the guarded stream before parsing.
-    let mut guarded = guard;
-    if start > 0 {
-        let mut bom = [0u8; 3];
-        guarded.read_exact(&mut bom).map_err(io_err(1))?;
-    }
+    // The BOM is skipped before the guard so that its offsets are the CSV reader's.
+    let mut head = io::Cursor::new(prefix);
+    head.set_position(start as u64);
+    let guarded = LineGuard::new(head.chain(reader));
     let mut rdr = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(false)
@@ -1084,9 +1143,9 @@ pub fn ingest<R: Read>(
 
     let file: Arc<str> = Arc::from(name);
     let mut rec = csv::ByteRecord::new();
-    let csv_err = |e: csv::Error, tripped: bool, line: u64| -> IngestError {
-        let at = e.position().map_or(line, |p| p.line());
-        if tripped {
+    let csv_err = |e: csv::Error, guard: &LineGuard<_>| -> IngestError {
+        let at = guard.current_line();
+        if guard.tripped {
             return IngestError::LineTooLong {
                 file: name.to_string(),
                 line: at,
@@ -1110,7 +1169,7 @@ pub fn ingest<R: Read>(
     // Header.
     let got = rdr
         .read_byte_record(&mut rec)
-        .map_err(|e| csv_err(e, rdr.get_ref().tripped, 1))?;
+        .map_err(|e| csv_err(e, rdr.get_ref()))?;
     if !got
         || rec
             .iter()
@@ -1120,7 +1179,7 @@ pub fn ingest<R: Read>(
             file: name.to_string(),
         });
     }
-    let header_line = rec.position().map_or(1, |p| p.line());
+    let header_line = record_line(&mut rdr, &rec);
     check_utf8(&rec, &[]).map_err(|what| IngestError::Encoding {
         file: name.to_string(),
         line: header_line,
@@ -1248,14 +1307,13 @@ pub fn ingest<R: Read>(
 
     let mut problems = String::new();
     let mut blank = 0u64;
-    let mut line = header_line;
     loop {
         match rdr.read_byte_record(&mut rec) {
             Ok(true) => {}
             Ok(false) => break,
-            Err(e) => return Err(csv_err(e, rdr.get_ref().tripped, line)),
+            Err(e) => return Err(csv_err(e, rdr.get_ref())),
         }
-        line = rec.position().map_or(line + 1, |p| p.line());
+        let line = record_line(&mut rdr, &rec);
         if rec
             .iter()
             .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
@@ -1298,4 +1356,523 @@ pub fn ingest<R: Read>(
         ));
     }
     Ok(stats)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    type Run = (Vec<FleetRow>, Vec<Rejected>, IngestStats);
+
+    fn run_opts(text: &[u8], opts: &IngestOptions) -> Result<Run, IngestError> {
+        let (mut rows, mut rejects) = (Vec::new(), Vec::new());
+        let stats = ingest("in.csv", text, opts, &mut |r| rows.push(r), &mut |r| {
+            rejects.push(r)
+        })?;
+        // Every record read is accounted for, once.
+        assert_eq!(stats.rows_read, stats.rows_accepted + stats.rows_rejected);
+        assert_eq!(stats.rows_accepted, rows.len() as u64);
+        assert_eq!(stats.rows_rejected, rejects.len() as u64);
+        Ok((rows, rejects, stats))
+    }
+
+    fn run(text: &str) -> Result<Run, IngestError> {
+        run_opts(text.as_bytes(), &IngestOptions::default())
+    }
+
+    const BASIC: &str = "unit_id,taken_at,volts,profile\n\
+        B1,2024-03-01 08:30,12.41,flooded-automotive\n\
+        B2,2024-03-01 08:35,12.65,agm\n";
+
+    #[test]
+    fn comma_semicolon_and_tab_give_the_same_rows() {
+        let (comma, rej, _) = run(BASIC).unwrap();
+        assert!(rej.is_empty());
+        for d in [";", "\t"] {
+            let (rows, rej, _) = run(&BASIC.replace(',', d)).unwrap();
+            assert!(rej.is_empty(), "{rej:?}");
+            assert_eq!(rows, comma);
+        }
+        // The values are the ones written (format spec: volts as typed).
+        assert_relative_eq!(comma[0].volts.unwrap().0, 12.41);
+        assert_eq!(&*comma[1].profile, "agm");
+        assert_eq!(comma[1].source.line, 3);
+        assert_eq!(comma[1].source.to_string(), "in.csv:3");
+    }
+
+    #[test]
+    fn a_given_delimiter_overrides_detection() {
+        let opts = IngestOptions {
+            delimiter: Some(b';'),
+            ..IngestOptions::default()
+        };
+        let err = run_opts(BASIC.as_bytes(), &opts).unwrap_err();
+        assert!(matches!(err, IngestError::NoHeader { .. }), "{err}");
+    }
+
+    #[test]
+    fn bom_and_crlf_are_accepted() {
+        let text = format!("\u{feff}{}", BASIC.replace('\n', "\r\n"));
+        let (rows, rej, _) = run(&text).unwrap();
+        assert!(rej.is_empty(), "{rej:?}");
+        assert_eq!(rows.len(), 2);
+        assert_eq!(&*rows[0].unit_id, "B1");
+        assert_eq!(rows[1].source.line, 3);
+        assert_eq!(rows[1].profile.as_ref(), "agm");
+    }
+
+    #[test]
+    fn decimal_comma_and_quoted_sg_list_in_a_semicolon_file() {
+        let text = "unit_id;taken_at;volts;sg;cells;temp_c;profile\n\
+            B1;2024-03-01 08:30;12,41;\"1,265;1,270;1,262;1,268;1,266;1,264\";6;-4,5;flooded-automotive\n\
+            B2;2024-03-01 08:30;12,41;1,265;6;20;flooded-automotive\n\
+            B3;2024-03-01 08:30;12,41;1,265;1,270;6;20;flooded-automotive\n";
+        let (rows, rej, _) = run(text).unwrap();
+        assert_eq!(rows.len(), 2, "{rej:?}");
+        assert_relative_eq!(rows[0].volts.unwrap().0, 12.41);
+        assert_relative_eq!(rows[0].temperature.unwrap().0, -4.5);
+        let sg: Vec<f64> = rows[0].sg.iter().map(|s| s.0).collect();
+        assert_eq!(sg, vec![1.265, 1.270, 1.262, 1.268, 1.266, 1.264]);
+        // One mean value is allowed whatever the cell count.
+        assert_eq!(rows[1].sg.len(), 1);
+        // Unquoted list: too many fields, with the hint.
+        assert_eq!(rej.len(), 1);
+        assert_eq!(rej[0].line, 4);
+        assert!(
+            rej[0].reason.contains("must be quoted"),
+            "{}",
+            rej[0].reason
+        );
+    }
+
+    #[test]
+    fn unknown_columns_get_one_notice() {
+        let text = "unit_id,taken_at,volts,profile,inspector,Colour\n\
+            B1,2024-03-01 08:30,12.41,agm,ann,red\n\
+            B2,2024-03-01 08:30,12.41,agm,bob,blue\n\
+            B3,2024-03-01 08:30,12.41,agm,cy,green\n";
+        let (rows, _, stats) = run(text).unwrap();
+        assert_eq!(rows.len(), 3);
+        assert_eq!(stats.unknown_columns, vec!["inspector", "Colour"]);
+        let about: Vec<_> = stats
+            .notices
+            .iter()
+            .filter(|n| n.contains("inspector"))
+            .collect();
+        assert_eq!(about.len(), 1);
+        assert!(about[0].contains("Colour"));
+    }
+
+    #[test]
+    fn header_names_are_trimmed_and_case_insensitive() {
+        let text = " Unit_ID ,TAKEN_AT, Volts ,Profile\nB1,2024-03-01 08:30,12.41,AGM\n";
+        let (rows, rej, stats) = run(text).unwrap();
+        assert!(rej.is_empty() && stats.unknown_columns.is_empty());
+        // Profile ids are matched in lower case.
+        assert_eq!(&*rows[0].profile, "agm");
+    }
+
+    #[test]
+    fn missing_required_columns_are_named() {
+        let err = run("unit_id,volts,profile\nB1,12.4,agm\n").unwrap_err();
+        assert!(
+            matches!(&err, IngestError::MissingColumn { column, .. } if column == "taken_at"),
+            "{err}"
+        );
+        assert!(err.to_string().starts_with("in.csv:1:"), "{err}");
+        let err = run("unit_id,taken at,volts,profile\nB1,2024-03-01 08:30,12.4,agm\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("did you mean `taken_at`"), "{err}");
+        let err = run("unit_id,taken_at,profile\nB1,2024-03-01 08:30,agm\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("`volts` or `sg`"), "{err}");
+        let err = run("unit_id,taken_at,volts\nB1,2024-03-01 08:30,12.4\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("`profile`"), "{err}");
+        // With a default profile the column is optional and the default fills in.
+        let opts = IngestOptions {
+            default_profile: Some("agm".into()),
+            ..IngestOptions::default()
+        };
+        let (rows, _, _) =
+            run_opts(b"unit_id,taken_at,volts\nB1,2024-03-01 08:30,12.4\n", &opts).unwrap();
+        assert_eq!(&*rows[0].profile, "agm");
+    }
+
+    #[test]
+    fn duplicated_and_conflicting_headers() {
+        let err = run("unit_id,taken_at,Volts, volts ,profile\n").unwrap_err();
+        assert!(
+            matches!(&err, IngestError::DuplicateColumn { column, first: 3, second: 4, .. } if column == "volts"),
+            "{err}"
+        );
+        let err = run("unit_id,taken_at,volts,profile,temp_c,temp_f\n").unwrap_err();
+        assert!(
+            matches!(err, IngestError::ConflictingColumns { .. }),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn empty_no_header_and_header_only() {
+        assert!(matches!(run(""), Err(IngestError::Empty { .. })));
+        assert!(matches!(run("\n\r\n\n"), Err(IngestError::Empty { .. })));
+        assert!(matches!(run("\u{feff}"), Err(IngestError::Empty { .. })));
+        let err = run("B1,2024-03-01 08:30,12.41,agm\n").unwrap_err();
+        assert!(matches!(err, IngestError::NoHeader { .. }), "{err}");
+        let (rows, rej, stats) = run("unit_id,taken_at,volts,profile\n").unwrap();
+        assert!(rows.is_empty() && rej.is_empty());
+        assert_eq!(stats.rows_read, 0);
+        assert!(stats.notices.iter().any(|n| n.contains("no readings")));
+        // Without a final line end the header is still a header.
+        assert!(run("unit_id,taken_at,volts,profile").is_ok());
+    }
+
+    #[test]
+    fn a_truncated_last_line_is_rejected_with_its_line() {
+        let text = format!("{BASIC}B3,2024-03-0");
+        let (rows, rej, _) = run(&text).unwrap();
+        assert_eq!(rows.len(), 2);
+        assert_eq!(rej.len(), 1);
+        assert_eq!(rej[0].line, 4);
+        assert!(
+            rej[0]
+                .reason
+                .contains("column `volts` and after are missing"),
+            "{}",
+            rej[0].reason
+        );
+        // A last line that is complete but lacks its line end is fine.
+        let (rows, rej, _) = run(BASIC.trim_end()).unwrap();
+        assert_eq!((rows.len(), rej.len()), (2, 0));
+    }
+
+    #[test]
+    fn utf16_is_refused_with_advice() {
+        let mut le = vec![0xFF, 0xFE];
+        for u in BASIC.encode_utf16() {
+            le.extend_from_slice(&u.to_le_bytes());
+        }
+        let err = run_opts(&le, &IngestOptions::default())
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("in.csv") && err.contains("UTF-16") && err.contains("re-save"),
+            "{err}"
+        );
+        // Without a byte-order mark: the NUL bytes give it away.
+        let err = run_opts(&le[2..], &IngestOptions::default()).unwrap_err();
+        assert!(matches!(err, IngestError::Encoding { .. }), "{err}");
+        let mut be = vec![0xFE, 0xFF];
+        for u in BASIC.encode_utf16() {
+            be.extend_from_slice(&u.to_be_bytes());
+        }
+        assert!(run_opts(&be, &IngestOptions::default()).is_err());
+    }
+
+    #[test]
+    fn latin1_is_refused_naming_line_and_column() {
+        let mut text = b"unit_id,taken_at,volts,profile,note\nB1,2024-03-01 08:30,12.41,agm,ok\nB2,2024-03-01 08:30,12.41,agm,K".to_vec();
+        text.push(0xFC); // 'ü' in Latin-1
+        text.extend_from_slice(b"hlraum\n");
+        let err = run_opts(&text, &IngestOptions::default()).unwrap_err();
+        let msg = err.to_string();
+        assert!(
+            matches!(err, IngestError::Encoding { line: 3, .. }),
+            "{msg}"
+        );
+        assert!(
+            msg.contains("Latin-1") && msg.contains("`note`") && msg.contains("UTF-8"),
+            "{msg}"
+        );
+        // In the header too.
+        let err = run_opts(
+            b"unit_id,taken_at,volts,profile,temp_\xb0C\n",
+            &IngestOptions::default(),
+        )
+        .unwrap_err();
+        assert!(
+            matches!(err, IngestError::Encoding { line: 1, .. }),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn a_10_mb_field_rejects_its_record_only() {
+        let mut text = String::from("unit_id,taken_at,volts,profile,note\n");
+        text.push_str("B1,2024-03-01 08:30,12.41,agm,");
+        text.push_str(&"x".repeat(10 * 1024 * 1024));
+        text.push_str("\nB2,2024-03-01 08:30,12.41,agm,fine\n");
+        let (rows, rej, _) = run(&text).unwrap();
+        assert_eq!(rows.len(), 1);
+        assert_eq!(&*rows[0].unit_id, "B2");
+        assert_eq!(rej[0].line, 2);
+        assert!(
+            rej[0].reason.contains("`note`") && rej[0].reason.contains("64 KiB"),
+            "{}",
+            rej[0].reason
+        );
+        // The message stays short: it does not carry the field.
+        assert!(rej[0].reason.len() < 200);
+    }
+
+    #[test]
+    fn a_line_without_end_stops_the_file_before_memory_does() {
+        let mut text =
+            String::from("unit_id,taken_at,volts,profile,note\nB1,2024-03-01 08:30,12.41,agm,");
+        text.push_str(&"x".repeat(MAX_LINE_BYTES as usize + 1));
+        let err = run(&text).unwrap_err();
+        assert!(
+            matches!(err, IngestError::LineTooLong { line: 2, .. }),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn future_timestamps_are_rejected_and_order_does_not_matter() {
+        let text = "unit_id,taken_at,volts,profile\n\
+            B1,2024-03-05 08:30,12.41,agm\n\
+            B1,2024-03-01 08:30,12.45,agm\n\
+            B1,2031-01-01 00:00,12.45,agm\n";
+        let opts = IngestOptions {
+            now: parse_timestamp("2024-06-01 00:00"),
+            ..IngestOptions::default()
+        };
+        let (rows, rej, _) = run_opts(text.as_bytes(), &opts).unwrap();
+        assert_eq!(rows.len(), 2);
+        assert!(rows[0].taken_at > rows[1].taken_at);
+        assert_eq!(rej[0].line, 4);
+        assert!(rej[0].reason.contains("`taken_at`") && rej[0].reason.contains("future"));
+    }
+
+    #[test]
+    fn timestamps_rfc3339_to_utc_and_local_as_written() {
+        let t = |s: &str| parse_timestamp(s).map(|t| t.to_string());
+        // RFC 3339 §4.2: local time = UTC + offset, so 08:30+02:00 is 06:30Z.
+        assert_eq!(
+            t("2024-03-01T08:30:00+02:00").as_deref(),
+            Some("2024-03-01 06:30:00")
+        );
+        assert_eq!(
+            t("2024-03-01T08:30:00-0130").as_deref(),
+            Some("2024-03-01 10:00:00")
+        );
+        assert_eq!(
+            t("2024-03-01T23:30:00.25-01:00").as_deref(),
+            Some("2024-03-02 00:30:00.250")
+        );
+        assert_eq!(
+            t("2024-03-01t08:30:00z").as_deref(),
+            Some("2024-03-01 08:30:00")
+        );
+        for local in [
+            "2024-03-01 08:30",
+            "2024-03-01T08:30",
+            "2024-03-01 08:30:00",
+        ] {
+            assert_eq!(t(local).as_deref(), Some("2024-03-01 08:30:00"), "{local}");
+        }
+        for bad in [
+            "2024-02-30 08:30",
+            "2024-03-01 24:00",
+            "2024-03-01 08:30:",
+            "2024-03-01 08:30+25:00",
+            "01/03/2024 08:30",
+            "2024-03-01",
+            "2024-03-01 08:30:00.",
+            "2024-03-01 08:30 UTC",
+        ] {
+            assert_eq!(t(bad), None, "{bad}");
+        }
+    }
+
+    #[test]
+    fn every_bad_row_names_file_line_and_column() {
+        let header = "unit_id,taken_at,volts,sg,cells,temp_c,rest_h,after,position,ohmic_mohm,float_current_a,profile";
+        // (record, column the reason must name, extra words it must contain)
+        let cases: &[(&str, &str, &str)] = &[
+            (",2024-03-01 08:30,12.4,,,,,,,,,agm", "unit_id", "empty"),
+            ("B,yesterday,12.4,,,,,,,,,agm", "taken_at", "RFC 3339"),
+            (
+                "B,2024-03-01 08:30,abc,,,,,,,,,agm",
+                "volts",
+                "not a number",
+            ),
+            (
+                "B,2024-03-01 08:30,NaN,,,,,,,,,agm",
+                "volts",
+                "not a number",
+            ),
+            ("B,2024-03-01 08:30,1500,,,,,,,,,agm", "volts", "absurd"),
+            ("B,2024-03-01 08:30,,,,,,,,,,agm", "volts", "sg` is empty"),
+            ("B,2024-03-01 08:30,,1.5,,,,,,,,agm", "sg", "outside"),
+            ("B,2024-03-01 08:30,,1265,,,,,,,,agm", "sg", "points"),
+            ("B,2024-03-01 08:30,,1.2;;1.2,,,,,,,,agm", "sg", "value 2"),
+            (
+                "B,2024-03-01 08:30,,1.2;1.2,6,,,,,,,agm",
+                "sg",
+                "2 values for 6 cells",
+            ),
+            ("B,2024-03-01 08:30,12.4,,0,,,,,,,agm", "cells", "1–400"),
+            ("B,2024-03-01 08:30,12.4,,401,,,,,,,agm", "cells", "1–400"),
+            (
+                "B,2024-03-01 08:30,12.4,,,95,,,,,,agm",
+                "temp_c",
+                "was it °F?",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,-300,,,,,,agm",
+                "temp_c",
+                "outside",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,-2,,,,,agm",
+                "rest_h",
+                "negative",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,100000,,,,,agm",
+                "rest_h",
+                "10 years",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,soon,,,,,agm",
+                "rest_h",
+                "not a rest time",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,resting,,,,agm",
+                "after",
+                "charge, discharge",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,,x,,,agm",
+                "position",
+                "whole number",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,,,-1,,agm",
+                "ohmic_mohm",
+                "above 0",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,,,,1e9,agm",
+                "float_current_a",
+                "absurd",
+            ),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,,,,,agn",
+                "profile",
+                "did you mean 'agm'",
+            ),
+            ("B,2024-03-01 08:30,12.4,,,,,,,,,", "profile", "no default"),
+            (
+                "B,2024-03-01 08:30,12.4,,,,,,,,agm",
+                "profile",
+                "found 11 fields",
+            ),
+        ];
+        let mut text = format!("{header}\n");
+        for (row, _, _) in cases {
+            text.push_str(row);
+            text.push('\n');
+        }
+        let opts = IngestOptions {
+            known_profiles: Some(vec!["agm".into(), "gel".into()]),
+            ..IngestOptions::default()
+        };
+        let (rows, rej, stats) = run_opts(text.as_bytes(), &opts).unwrap();
+        assert!(rows.is_empty(), "{rows:?}");
+        assert_eq!(stats.rows_read, cases.len() as u64);
+        for (i, ((_, col, words), r)) in cases.iter().zip(&rej).enumerate() {
+            let line = i as u64 + 2;
+            assert_eq!(r.line, line);
+            assert_eq!(r.file, "in.csv");
+            let shown = r.to_string();
+            assert!(shown.starts_with(&format!("in.csv:{line}: ")), "{shown}");
+            assert!(
+                r.reason.contains(&format!("`{col}`")),
+                "line {line}: {shown}"
+            );
+            assert!(r.reason.contains(words), "line {line}: {shown}");
+        }
+    }
+
+    #[test]
+    fn near_zero_and_negative_volts_are_kept_for_the_analysis() {
+        let text = "unit_id,taken_at,volts,profile,after,rest_h\n\
+            B1,2024-03-01 08:30,0,agm,,\n\
+            B2,2024-03-01 08:30,-0.31,agm,Float,\n\
+            B3,2024-03-01 08:30,\u{2212}0.2,agm,unknown,1h30m\n";
+        let (rows, rej, _) = run(text).unwrap();
+        assert!(rej.is_empty(), "{rej:?}");
+        assert_eq!(rows[0].volts, Some(Volts(0.0)));
+        assert_eq!(rows[1].volts, Some(Volts(-0.31)));
+        assert_eq!(rows[1].after, After::Float);
+        assert_eq!(rows[2].volts, Some(Volts(-0.2)));
+        assert_eq!(rows[2].rest, Some(Hours(1.5)));
+        assert_eq!(rows[0].rest, None);
+    }
+
+    #[test]
+    fn fahrenheit_optional_fields_and_shared_names() {
+        let text = "unit_id,taken_at,volts,profile,temp_f,site,string,position,cells,ohmic_mohm,baseline_mohm,note,float_current_a,ambient_c\n\
+            B1,2024-03-01 08:30,2.23,flooded-stationary,77,North Yard,S1,7,1,0.31,0.30,\"topped up, level ok\",0.2,21.5\n\
+            B2,2024-03-01 08:30,2.23,flooded-stationary,32,North Yard,S1,8,1,,,,,\n";
+        let (rows, rej, _) = run(text).unwrap();
+        assert!(rej.is_empty(), "{rej:?}");
+        let r = &rows[0];
+        // 77 °F = 25 °C and 32 °F = 0 °C (definition of the Fahrenheit scale).
+        assert_relative_eq!(r.temperature.unwrap().0, 25.0, epsilon = 1e-9);
+        assert_relative_eq!(rows[1].temperature.unwrap().0, 0.0, epsilon = 1e-9);
+        assert_eq!(r.site.as_deref(), Some("North Yard"));
+        assert_eq!((r.position, r.cells), (Some(7), Some(1)));
+        assert_eq!(r.ohmic, Some(Milliohms(0.31)));
+        assert_eq!(r.baseline_ohmic, Some(Milliohms(0.30)));
+        assert_eq!(r.note.as_deref(), Some("topped up, level ok"));
+        assert_eq!(r.float_current, Some(Amperes(0.2)));
+        assert_eq!(r.ambient, Some(Celsius(21.5)));
+        assert_eq!(rows[1].note, None);
+        // Repeated names are one allocation.
+        assert!(Arc::ptr_eq(
+            r.site.as_ref().unwrap(),
+            rows[1].site.as_ref().unwrap()
+        ));
+        assert!(Arc::ptr_eq(&r.profile, &rows[1].profile));
+        assert!(Arc::ptr_eq(&r.source.file, &rows[1].source.file));
+        // JSON output keeps plain strings.
+        let json = serde_json::to_value(r).unwrap();
+        assert_eq!(json["source"], "in.csv:2");
+        assert_eq!(json["unit_id"], "B1");
+        assert_eq!(json["after"], "unknown");
+    }
+
+    #[test]
+    fn blank_records_are_skipped_and_multiline_fields_keep_line_numbers() {
+        let text = "unit_id,taken_at,volts,profile,note\n\
+            B1,2024-03-01 08:30,12.41,agm,\"two\nlines\"\n\
+            ,,,,\n\
+            \n\
+            B2,2024-03-01 08:30,12.41,agm,\n";
+        let (rows, rej, stats) = run(text).unwrap();
+        assert!(rej.is_empty(), "{rej:?}");
+        assert_eq!(rows[0].source.line, 2);
+        assert_eq!(rows[1].source.line, 6);
+        assert_eq!(stats.rows_read, 2);
+        assert!(stats.notices.iter().any(|n| n.contains("skipped 1 record")));
+    }
+
+    #[test]
+    fn stats_merge_across_files() {
+        let (_, _, mut a) =
+            run("unit_id,taken_at,volts,profile,x\nB1,2024-03-01 08:30,1,agm,\n").unwrap();
+        let (_, _, b) = run("unit_id,taken_at,volts,profile,x,y\nB1,bad,1,agm,,\n").unwrap();
+        a.merge(b);
+        assert_eq!((a.rows_read, a.rows_accepted, a.rows_rejected), (2, 1, 1));
+        assert_eq!(a.unknown_columns, vec!["x", "y"]);
+    }
 }
