@@ -7,7 +7,7 @@
 //!    base profile's open-circuit coefficient at the point's state of charge:
 //!    `v25 = v/cells − coef/1000 · (t − 25)` (coef in mV/K per cell,
 //!    [`Profile::ocv_coefficient`]). A hydrometer reading is first referred to
-//!    SG 25/25 with the default rule ([`HydrometerRule::default`], 0.001 per
+//!    SG 25/25 with the default rule ([`crate::electrolyte::HydrometerRule::default`], 0.001 per
 //!    1.67 °C), then turned into the OCV per cell at 25 °C that acid of that
 //!    strength gives ([`crate::electrolyte::cell_ocv_25c_from_sg25`]: Laliberté density
 //!    → molality → Bode polynomial). An SG point thus calibrates the curve
@@ -21,8 +21,9 @@
 //!    would refuse it). The first and last levels are pooled with their
 //!    neighbours until each holds [`END_MIN_POINTS`] points, because the
 //!    isotonic fit at an end rests on whatever extreme point lies there.
-//!    Every group pooled across different states of charge is
-//!    listed as a warning.
+//!    Every group the isotonic step itself pooled across different states of
+//!    charge is listed as a warning (the end and slope pooling are not: they
+//!    are part of the method, not a sign of contradictory data).
 //! 3. **Curve.** One point per pooled level, at the weighted mean state of
 //!    charge of its block; the profile's monotone cubic
 //!    ([`crate::profile::curve::MonotoneCurve`]) interpolates them.
@@ -51,7 +52,6 @@ pub use fit::{isotonic_fit, Block};
 pub use input::{read_points, CalibrationPoint};
 pub use report::{CalibrationReport, FitMethod, PooledGroup, Residual};
 
-use crate::electrolyte::HydrometerRule;
 use crate::profile::curve::MonotoneCurve;
 use crate::profile::schema::{CurveKind, CurveSection, ToleranceSection};
 use crate::profile::{Profile, ProfileError, ProfileFile, Sourced};
@@ -352,10 +352,6 @@ pub fn calibrate(
         format!("calibrated on: {}", opts.today),
         format!("points: {n}"),
         format!("base profile: {}", base.id()),
-        format!(
-            "SG points referred to 25 °C by the {:?} hydrometer rule and converted to OCV through the electrolyte",
-            HydrometerRule::default()
-        ),
     ];
     provenance.extend(
         base.spec
@@ -442,17 +438,27 @@ pub fn calibrate(
             "only {levels_count} distinct levels after pooling: the covered range is fitted by a straight line"
         ));
     }
-    for g in &pooled {
+    if !pooled.is_empty() {
+        let groups: Vec<String> = pooled
+            .iter()
+            .map(|g| {
+                format!(
+                    "lines {} ({:.1}–{:.1} %, {:.4} V per cell)",
+                    g.lines
+                        .iter()
+                        .map(|l| l.to_string())
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    g.soc_from.0,
+                    g.soc_to.0,
+                    g.level_volts_per_cell_25c.0
+                )
+            })
+            .collect();
         warnings.push(format!(
-            "lines {} ({:.1}–{:.1} % SOC) contradict a rising curve and were pooled to {:.4} V per cell",
-            g.lines
-                .iter()
-                .map(|l| l.to_string())
-                .collect::<Vec<_>>()
-                .join(", "),
-            g.soc_from.0,
-            g.soc_to.0,
-            g.level_volts_per_cell_25c.0
+            "the isotonic step pooled {} group(s) of points whose voltage does not rise with charge (noise, or a wrong state of charge): {}",
+            pooled.len(),
+            groups.join("; ")
         ));
     }
 
@@ -528,6 +534,22 @@ fn fit_core(
         .collect();
 
     let blocks = isotonic_fit(&group_mean, &group_weight);
+    // Only the isotonic step's own pooling is reported: it marks data that
+    // contradict a rising curve. The end and slope pooling below are method.
+    let pooled: Vec<PooledGroup> = blocks
+        .iter()
+        .filter(|b| b.len() > 1)
+        .map(|b| PooledGroup {
+            lines: groups[b.start..b.end]
+                .iter()
+                .flatten()
+                .map(|p| p.line)
+                .collect(),
+            soc_from: SocPercent(group_soc[b.start]),
+            soc_to: SocPercent(group_soc[b.end - 1]),
+            level_volts_per_cell_25c: Volts(b.level),
+        })
+        .collect();
     let min_slope = MIN_SLOPE_MV_PER_PERCENT / 1000.0;
     let mut levels = fit::enforce_min_slope(&blocks, &group_soc, &group_weight, min_slope);
     let before_ends = levels.len();
@@ -583,20 +605,6 @@ fn fit_core(
             }
         }
     };
-    let pooled: Vec<PooledGroup> = levels
-        .iter()
-        .filter(|l| l.block.len() > 1)
-        .map(|l| PooledGroup {
-            lines: groups[l.block.start..l.block.end]
-                .iter()
-                .flatten()
-                .map(|p| p.line)
-                .collect(),
-            soc_from: SocPercent(group_soc[l.block.start]),
-            soc_to: SocPercent(group_soc[l.block.end - 1]),
-            level_volts_per_cell_25c: Volts(l.block.level),
-        })
-        .collect();
     Ok(Core {
         method,
         extended,
