@@ -6,6 +6,7 @@
 //! fleet → rules → report. No module reaches back up that chain.
 #![warn(missing_docs)]
 
+pub mod calibrate;
 pub mod cli;
 pub mod correct;
 pub mod electrolyte;

@@ -1,0 +1,289 @@
+//! Reading calibration points from CSV.
+//!
+//! Columns (header names case-insensitive, in any order; other columns are
+//! ignored so that a unit id or a date may stay in the sheet):
+//! - `soc_percent`: the known state of charge, 0–100 (required);
+//! - `volts`: rested voltage across the unit, **or** `sg`: mean specific
+//!   gravity of its cells as read on the hydrometer at the acid temperature;
+//! - `temp_c` or `temp_f`: the temperature of the unit / the acid (the column
+//!   names the unit, so the values are bare numbers);
+//! - `cells`: cells in series (optional; default the base profile's).
+//!
+//! The delimiter is `;` or a tab when the header line holds one, else `,`.
+//! A decimal comma is accepted (`12,41`; quote it in a comma-separated file).
+//! Lines starting with `#` are comments.
+
+use super::CalibrateError;
+use crate::electrolyte::{
+    self, correct_to_25c, HydrometerRule, TEMPERATURE_MAX_C, TEMPERATURE_MIN_C,
+};
+use crate::profile::Profile;
+use crate::units::{parse_decimal, Celsius, SocPercent, SpecificGravity, Volts};
+use std::io::Read;
+
+/// One known pair: a state of charge and the OCV per cell it gave, referred to 25 °C.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct CalibrationPoint {
+    /// 1-based line of the input the point came from.
+    pub line: u64,
+    /// The known state of charge.
+    pub soc: SocPercent,
+    /// Open-circuit voltage per cell at 25 °C.
+    pub volts_per_cell_25c: Volts,
+}
+
+/// Plausible rested OCV per cell at 25 °C for any lead-acid cell; outside it
+/// the `cells` count or the reading is wrong (common practice: rested cells sit
+/// between about 1.9 and 2.2 V, with margin either side).
+const PLAUSIBLE_VOLTS_PER_CELL: (f64, f64) = (1.7, 2.4);
+
+struct Columns {
+    soc: usize,
+    volts: Option<usize>,
+    sg: Option<usize>,
+    temp_c: Option<usize>,
+    temp_f: Option<usize>,
+    cells: Option<usize>,
+}
+
+/// Read calibration points from CSV text (see the module documentation for
+/// the columns). `name` is used in messages as `name:line`. Every point is
+/// corrected to 25 °C with the base profile's OCV coefficient (volts) or
+/// through the electrolyte (SG); see [`crate::calibrate`].
+pub fn read_points<R: Read>(
+    name: &str,
+    mut reader: R,
+    base: &Profile,
+) -> Result<Vec<CalibrationPoint>, CalibrateError> {
+    let mut text = String::new();
+    reader
+        .read_to_string(&mut text)
+        .map_err(|e| CalibrateError::Io {
+            file: name.to_string(),
+            message: format!("{e} (expected UTF-8 CSV text)"),
+        })?;
+    let header_line = text
+        .lines()
+        .find(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+        .unwrap_or("");
+    let delimiter = if header_line.contains(';') {
+        b';'
+    } else if header_line.contains('\t') {
+        b'\t'
+    } else {
+        b','
+    };
+    let mut csv = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .comment(Some(b'#'))
+        .trim(csv::Trim::All)
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let headers = csv
+        .headers()
+        .map_err(|e| csv_error(name, &e))?
+        .iter()
+        .map(|h| h.trim().to_ascii_lowercase())
+        .collect::<Vec<_>>();
+    let cols = find_columns(name, &headers)?;
+    let mut points = Vec::new();
+    for record in csv.records() {
+        let record = record.map_err(|e| csv_error(name, &e))?;
+        let line = record.position().map(|p| p.line()).unwrap_or(0);
+        if record.iter().all(|f| f.is_empty()) {
+            continue;
+        }
+        let field = |i: Option<usize>| i.and_then(|i| record.get(i)).filter(|s| !s.is_empty());
+        points.push(read_row(name, line, &cols, field, base)?);
+    }
+    if points.is_empty() {
+        return Err(CalibrateError::NoData {
+            file: name.to_string(),
+        });
+    }
+    Ok(points)
+}
+
+fn csv_error(name: &str, e: &csv::Error) -> CalibrateError {
+    CalibrateError::Csv {
+        file: name.to_string(),
+        line: e.position().map(|p| p.line()).unwrap_or(1),
+        message: e.to_string(),
+    }
+}
+
+fn find_columns(name: &str, headers: &[String]) -> Result<Columns, CalibrateError> {
+    let find = |want: &str| -> Result<Option<usize>, CalibrateError> {
+        let mut hits = headers
+            .iter()
+            .enumerate()
+            .filter(|(_, h)| h.as_str() == want);
+        let first = hits.next().map(|(i, _)| i);
+        if hits.next().is_some() {
+            return Err(CalibrateError::Header {
+                file: name.to_string(),
+                message: format!("column `{want}` appears more than once"),
+            });
+        }
+        Ok(first)
+    };
+    let cols = Columns {
+        soc: find("soc_percent")?.ok_or_else(|| CalibrateError::Header {
+            file: name.to_string(),
+            message: format!(
+                "no `soc_percent` column (found: {}); expected soc_percent, volts or sg, temp_c or temp_f, and optionally cells",
+                headers.join(", ")
+            ),
+        })?,
+        volts: find("volts")?,
+        sg: find("sg")?,
+        temp_c: find("temp_c")?,
+        temp_f: find("temp_f")?,
+        cells: find("cells")?,
+    };
+    if cols.volts.is_none() && cols.sg.is_none() {
+        return Err(CalibrateError::Header {
+            file: name.to_string(),
+            message: "no `volts` or `sg` column: each point needs a rested voltage or a hydrometer reading".into(),
+        });
+    }
+    if cols.temp_c.is_none() && cols.temp_f.is_none() {
+        return Err(CalibrateError::Header {
+            file: name.to_string(),
+            message: "no `temp_c` or `temp_f` column: a reading cannot be referred to 25 °C without its temperature".into(),
+        });
+    }
+    Ok(cols)
+}
+
+fn read_row<'a>(
+    name: &str,
+    line: u64,
+    cols: &Columns,
+    field: impl Fn(Option<usize>) -> Option<&'a str>,
+    base: &Profile,
+) -> Result<CalibrationPoint, CalibrateError> {
+    let err = |column: &str, message: String| CalibrateError::Field {
+        file: name.to_string(),
+        line,
+        column: column.to_string(),
+        message,
+    };
+    let number = |column: &str, raw: &str, expected: &str| {
+        parse_decimal(raw, expected).map_err(|e| err(column, e.to_string()))
+    };
+
+    let soc_raw = field(Some(cols.soc)).ok_or_else(|| {
+        err(
+            "soc_percent",
+            "is empty: the known state of charge is the point of the line".into(),
+        )
+    })?;
+    let soc = number("soc_percent", soc_raw, "a state of charge in percent")?;
+    if !(0.0..=100.0).contains(&soc) {
+        return Err(err("soc_percent", format!("{soc} % is outside 0–100 %")));
+    }
+
+    let t = match (field(cols.temp_c), field(cols.temp_f)) {
+        (Some(_), Some(_)) => {
+            return Err(err(
+                "temp_c",
+                "both temp_c and temp_f are given: give one".into(),
+            ))
+        }
+        (Some(raw), None) => Celsius(number("temp_c", raw, "a temperature in °C")?),
+        (None, Some(raw)) => {
+            Celsius::from_fahrenheit(number("temp_f", raw, "a temperature in °F")?)
+        }
+        (None, None) => {
+            let column = if cols.temp_c.is_some() {
+                "temp_c"
+            } else {
+                "temp_f"
+            };
+            return Err(err(
+                column,
+                "is empty: the temperature is needed to refer the reading to 25 °C".into(),
+            ));
+        }
+    };
+    if !(TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&t.0) {
+        let column = if field(cols.temp_c).is_some() {
+            "temp_c"
+        } else {
+            "temp_f"
+        };
+        return Err(err(
+            column,
+            format!(
+                "{:.1} °C is outside {TEMPERATURE_MIN_C}–{TEMPERATURE_MAX_C} °C",
+                t.0
+            ),
+        ));
+    }
+
+    let v25 = match (field(cols.volts), field(cols.sg)) {
+        (Some(_), Some(_)) => {
+            return Err(err(
+                "volts",
+                "both volts and sg are given: give one reading per line".into(),
+            ))
+        }
+        (None, None) => {
+            let column = if cols.volts.is_some() { "volts" } else { "sg" };
+            return Err(err(
+                column,
+                "is empty: a rested voltage or a hydrometer reading is needed".into(),
+            ));
+        }
+        (Some(raw), None) => {
+            let volts = number("volts", raw, "a voltage in volts")?;
+            let cells = match field(cols.cells) {
+                None => base.cells(),
+                Some(raw) => {
+                    let c = number("cells", raw, "a whole number of cells")?;
+                    if c.fract() != 0.0 || !(1.0..=400.0).contains(&c) {
+                        return Err(err("cells", format!("{c}: expected a whole number 1–400")));
+                    }
+                    c as u32
+                }
+            };
+            let per_cell = volts / f64::from(cells);
+            let coef = base.ocv_coefficient(SocPercent(soc));
+            let v25 = per_cell - coef.0 / 1000.0 * (t.0 - 25.0);
+            let (lo, hi) = PLAUSIBLE_VOLTS_PER_CELL;
+            if !(lo..=hi).contains(&v25) {
+                return Err(err(
+                    "volts",
+                    format!(
+                        "{volts} V over {cells} cells is {v25:.3} V per cell at 25 °C, outside the {lo}–{hi} V a rested lead-acid cell reads; check the reading and the cells count"
+                    ),
+                ));
+            }
+            v25
+        }
+        (None, Some(raw)) => {
+            if !base.hydrometer_usable() {
+                return Err(err(
+                    "sg",
+                    format!(
+                        "base profile '{}' is valve-regulated: its electrolyte cannot be sampled with a hydrometer",
+                        base.id()
+                    ),
+                ));
+            }
+            let sg = number("sg", raw, "a specific gravity like 1.265")?;
+            let sg25 = correct_to_25c(SpecificGravity(sg), t, HydrometerRule::default())
+                .map_err(|e| err("sg", e.to_string()))?
+                .value;
+            electrolyte::cell_ocv_25c_from_sg25(sg25)
+                .map_err(|e| err("sg", format!("SG 25/25 {:.4}: {e}", sg25.0)))?
+                .0
+        }
+    };
+    Ok(CalibrationPoint {
+        line,
+        soc: SocPercent(soc),
+        volts_per_cell_25c: Volts(v25),
+    })
+}
