@@ -102,7 +102,8 @@ pub struct CheckArgs {
     #[arg(long, value_name = "TEMP", allow_hyphen_values = true)]
     pub temp: Option<String>,
     /// Rest since the last charge or discharge: 40m, 6h, 2d, or unknown
-    #[arg(long, default_value = "unknown")]
+    // Hyphen values reach parse_duration so `--rest -2h` gets its own message.
+    #[arg(long, default_value = "unknown", allow_hyphen_values = true)]
     pub rest: String,
     /// What came before the rest
     #[arg(long, value_enum, default_value = "unknown")]

@@ -44,7 +44,10 @@ pub enum Command {
     /// Estimate the rested voltage from readings taken while the unit rests
     Settle(settle::SettleArgs),
     /// List, show and validate battery profiles
-    #[command(subcommand)]
+    #[command(
+        subcommand,
+        after_help = "Examples:\n  restvolt profiles list\n  restvolt profiles show agm --temp -10C\n  restvolt profiles check my-agm.toml"
+    )]
     Profiles(profiles::ProfilesCommand),
     /// Print the rules table in effect (thresholds, defaults and sources)
     Rules(tools::RulesArgs),
