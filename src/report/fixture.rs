@@ -1,0 +1,73 @@
+//! A small fleet with a few faults, run through the real library, for the
+//! format tests.
+
+use crate::fleet::analysis::{finish, FleetReport, FleetSettings, FleetState};
+use crate::fleet::ingest::{ingest, IngestOptions};
+use crate::profile::store::ProfileStore;
+
+/// Invented demo fleet (names invented): a flooded stationary string of six
+/// cells with one low cell, AGM blocks at a second site (one deeply
+/// discharged, one cold, one read too soon after charge), and rows that the
+/// reader must reject.
+pub const CSV: &str = "\
+unit_id,taken_at,profile,volts,site,string,position,temp_c,rest_h,after
+C1,2024-01-05 09:00,flooded-stationary,2.05,North <Depot>,A,1,20,48,idle
+C2,2024-01-05 09:00,flooded-stationary,2.052,North <Depot>,A,2,20,48,idle
+C3,2024-01-05 09:00,flooded-stationary,2.049,North <Depot>,A,3,20,48,idle
+C4,2024-01-05 09:00,flooded-stationary,2.01,North <Depot>,A,4,20,48,idle
+C5,2024-01-05 09:00,flooded-stationary,2.051,North <Depot>,A,5,20,48,idle
+C6,2024-01-05 09:00,flooded-stationary,2.048,North <Depot>,A,6,20,48,idle
+C1,2024-02-05 09:00,flooded-stationary,2.049,North <Depot>,A,1,20,48,idle
+C2,2024-02-05 09:00,flooded-stationary,2.051,North <Depot>,A,2,20,48,idle
+C3,2024-02-05 09:00,flooded-stationary,2.048,North <Depot>,A,3,20,48,idle
+C4,2024-02-05 09:00,flooded-stationary,2.0,North <Depot>,A,4,20,48,idle
+C5,2024-02-05 09:00,flooded-stationary,2.05,North <Depot>,A,5,20,48,idle
+C6,2024-02-05 09:00,flooded-stationary,2.047,North <Depot>,A,6,20,48,idle
+C6,2024-02-05 09:00,flooded-stationary,2.047,North <Depot>,A,6,20,48,idle
+B-01,2024-01-10 08:00,agm,12.80,Harbour Yard,,,15,24,idle
+B-01,2024-02-10 08:00,agm,12.78,Harbour Yard,,,15,24,idle
+B-02,2024-01-10 08:00,agm,12.10,Harbour Yard,,,15,24,idle
+B-02,2024-02-10 08:00,agm,11.90,Harbour Yard,,,15,24,idle
+B-03,2024-02-10 08:00,agm,12.05,Harbour Yard,,,-22,24,idle
+B-04,2024-02-10 08:00,agm,12.95,Harbour Yard,,,20,0.5,charge
+B-05,2024-02-10 08:00,agm,twelve,Harbour Yard,,,20,24,idle
+B-06,2024-02-30 08:00,agm,12.7,Harbour Yard,,,20,24,idle
+";
+
+/// The fixture's report, analysed with the default settings and built-in profiles.
+pub fn report() -> (FleetReport, ProfileStore) {
+    let store = ProfileStore::builtin().unwrap();
+    let settings = FleetSettings::default();
+    let mut state = FleetState::default();
+    let mut rows = Vec::new();
+    let mut rejected = Vec::new();
+    let stats = ingest(
+        "demo.csv",
+        CSV.as_bytes(),
+        &IngestOptions::default(),
+        &mut |r| rows.push(r),
+        &mut |r| rejected.push(r),
+    )
+    .unwrap();
+    for r in rows {
+        state.add_row(r, &store, &settings);
+    }
+    for r in rejected {
+        state.add_rejected(r);
+    }
+    state.rows_read = stats.rows_read;
+    state.rows_accepted = stats.rows_accepted;
+    state.notices = stats.notices;
+    let report = finish(&state, &store, &settings);
+    (report, store)
+}
+
+/// The context every format test uses: fixed time, colour off.
+pub fn ctx(store: &ProfileStore) -> super::ReportContext<'_> {
+    super::ReportContext {
+        store,
+        generated_at: "2024-02-11 07:30".into(),
+        fleet_name: "Demo fleet <north & harbour>".into(),
+        colour: false,
+    }
+}

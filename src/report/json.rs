@@ -1,0 +1,126 @@
+//! The report as JSON: `serde_json` pretty output of
+//! [`FleetReport`](crate::fleet::analysis::FleetReport) itself.
+//!
+//! This layout is a public promise, schema id `restvolt.fleet/1`. A later
+//! version may add fields; removing or changing the meaning of one changes the
+//! schema id. Fields:
+//!
+//! - `schema`: `"restvolt.fleet/1"`.
+//! - `summary`: counts over the whole run.
+//!   - `rows_read`, `rows_accepted`, `rows_rejected`: records read, kept and
+//!     rejected (`rows_read = rows_accepted + rows_rejected`).
+//!   - `units`: number of units.
+//!   - `by_action`: action word → number of units.
+//!   - `by_site`: site (or `"(no site)"`) → action word → number of units.
+//!   - `duplicate_readings`: readings repeated exactly (counted once).
+//!   - `short_rest_readings`: readings taken with less than the profile's rest.
+//!   - `period`: `[first, last]` reading time as `YYYY-MM-DD HH:MM`, or null.
+//!   - `profiles`: profile ids used, sorted.
+//! - `units`: one object per unit, most urgent first.
+//!   - `rank` (1 = most urgent), `unit_id`, `site`, `string`, `position`
+//!     (null when not given), `profile`.
+//!   - `action`: one of `replace`, `recharge-now`, `remeasure`, `equalize`,
+//!     `capacity-test`, `recharge`, `serviceable` (that order is precedence).
+//!   - `soc_percent`: state of charge at the latest reading, %; null for a
+//!     float-only or unusable reading. `soc_interval_percent`: its 95 %
+//!     interval `[low, high]`, %.
+//!   - `ocv_per_cell_25c_volts`: latest rested voltage per cell referred to
+//!     25 °C, V; null when the reading was not rested or not trusted.
+//!   - `flags`: flag codes, sorted (e.g. `short-rest`, `freeze-risk`,
+//!     `peer-outlier`, `sulfation-risk`).
+//!   - `reasons`: `{rule, action, detail, source}` each, most urgent first:
+//!     the rule id, the action it calls for, the evidence in words, and where
+//!     the rule comes from.
+//!   - `readings`: readings of the unit; `latest_at`: time of the latest.
+//!   - `trend_percent_per_30_days`: slope of rested state of charge, % per 30
+//!     days; `trend_readings`: rested readings behind it.
+//!   - `days_below_recharge`: days in the current stretch below the profile's
+//!     recharge threshold.
+//!   - `peer_deviation_mv`: rested per-cell voltage minus the peer median, mV;
+//!     `peer_z`: robust (modified) z-score among peers.
+//!   - `ohmic_rise_percent`: ohmic value over its baseline, %.
+//!   - `coldest_celsius`: coldest temperature seen or expected, °C;
+//!     `freezing_point_celsius`: electrolyte freezing point at the latest
+//!     state of charge, °C.
+//!   - `heat_ageing_factor`: mean heat-ageing factor (1 = as at 25 °C).
+//! - `rejected`: `{file, line, reason}` per rejected record (at most the
+//!   first 1000; `summary.rows_rejected` is always the full count).
+//! - `notices`: messages from reading the input.
+//!
+//! Unknown numbers are `null`, never `NaN`.
+
+use super::{FleetFormat, ReportContext};
+use crate::fleet::analysis::FleetReport;
+
+/// The JSON format.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Json;
+
+impl FleetFormat for Json {
+    fn render(&self, report: &FleetReport, _ctx: &ReportContext) -> String {
+        match serde_json::to_string_pretty(report) {
+            Ok(mut s) => {
+                s.push('\n');
+                s
+            }
+            // Serializing plain structs, maps with string keys and floats
+            // (NaN becomes null) does not fail; say so in JSON if it ever does.
+            Err(e) => format!(
+                "{{\"schema\": {:?}, \"error\": {:?}}}\n",
+                report.schema,
+                e.to_string()
+            ),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::report::fixture;
+
+    #[test]
+    fn parses_with_the_promised_fields() {
+        let (report, store) = fixture::report();
+        let text = Json.render(&report, &fixture::ctx(&store));
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(v["schema"], "restvolt.fleet/1");
+        for k in ["summary", "units", "rejected", "notices"] {
+            assert!(v.get(k).is_some(), "{k}");
+        }
+        assert_eq!(v["units"].as_array().unwrap().len(), report.units.len());
+        assert_eq!(v["summary"]["rows_rejected"], 2);
+        // Every field documented above for a unit is present in the output.
+        let unit = v["units"][0].as_object().unwrap();
+        for k in [
+            "rank",
+            "unit_id",
+            "site",
+            "string",
+            "position",
+            "profile",
+            "action",
+            "soc_percent",
+            "soc_interval_percent",
+            "ocv_per_cell_25c_volts",
+            "flags",
+            "reasons",
+            "readings",
+            "latest_at",
+            "trend_percent_per_30_days",
+            "trend_readings",
+            "days_below_recharge",
+            "peer_deviation_mv",
+            "peer_z",
+            "ohmic_rise_percent",
+            "coldest_celsius",
+            "freezing_point_celsius",
+            "heat_ageing_factor",
+        ] {
+            assert!(unit.contains_key(k), "unit field {k}");
+        }
+        assert_eq!(unit.len(), 23, "a unit field is undocumented: {unit:?}");
+        let r = v["rejected"][0].as_object().unwrap();
+        assert!(r.contains_key("file") && r.contains_key("line") && r.contains_key("reason"));
+    }
+}
