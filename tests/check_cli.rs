@@ -45,7 +45,6 @@ fn every_help_example_runs() {
 /// The fourth help example uses `--float`, which this build answers with
 /// "this build does not have" the float checks (src/cli/tools.rs `check_float`).
 #[test]
-#[ignore = "documented help example fails: check --float is a stub in this build"]
 fn help_float_example_runs() {
     let ex = help_examples()
         .into_iter()

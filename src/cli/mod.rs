@@ -6,6 +6,7 @@
 //! report is complete for the rest).
 
 pub mod check;
+pub mod fleet;
 pub mod output;
 pub mod profiles;
 pub mod settle;
@@ -41,6 +42,14 @@ pub struct Cli {
 pub enum Command {
     /// Assess one unit from a rest voltage and/or hydrometer readings
     Check(check::CheckArgs),
+    /// Diagnose and rank a fleet from CSV readings
+    Fleet(fleet::FleetArgs),
+    /// Run the fleet report on the bundled, invented demo fleet
+    Demo(fleet::DemoArgs),
+    /// Write a synthetic fleet (input format) with a documented fault mix
+    Generate(fleet::GenerateArgs),
+    /// Fit a new profile from your own known-state-of-charge measurements
+    Calibrate(tools::CalibrateArgs),
     /// Estimate the rested voltage from readings taken while the unit rests
     Settle(settle::SettleArgs),
     /// List, show and validate battery profiles
@@ -129,6 +138,10 @@ use crate::profile::store as restvolt_store;
 pub fn run(cli: Cli) -> CmdResult {
     match cli.command {
         Command::Check(a) => check::run(a, &store(&cli.profiles)?),
+        Command::Fleet(a) => fleet::run(a, &store(&cli.profiles)?),
+        Command::Demo(a) => fleet::demo(a, &store(&cli.profiles)?),
+        Command::Generate(a) => fleet::generate(a),
+        Command::Calibrate(a) => tools::calibrate(a, &store(&cli.profiles)?),
         Command::Settle(a) => settle::run(a, &store(&cli.profiles)?),
         Command::Profiles(c) => profiles::run(c, &cli.profiles),
         Command::Rules(a) => tools::rules(a),

@@ -178,7 +178,9 @@ pub fn completions(a: CompletionsArgs, cmd: &mut clap::Command) -> CmdResult {
     Ok(0)
 }
 
-/// `check --float`: one unit on float charge.
+/// `check --float`: one unit on float charge. The float voltage is judged
+/// against the temperature-compensated window; it is never turned into a
+/// state of charge.
 pub fn check_float(
     args: &CheckArgs,
     profile: &Profile,
@@ -186,8 +188,134 @@ pub fn check_float(
     temperature: Option<Celsius>,
     rules: &Rules,
 ) -> CmdResult {
-    let _ = (args, profile, volts, temperature, rules);
-    Err(CliError::usage(
-        "--float needs the float checks, which this build does not have",
-    ))
+    let volts = volts.ok_or_else(|| {
+        CliError::usage("--float needs --volts (the float voltage across the unit or cell)")
+    })?;
+    let ambient = args
+        .ambient
+        .as_deref()
+        .map(crate::units::parse_temperature)
+        .transpose()
+        .map_err(|e| CliError::usage(format!("--ambient: {e}")))?;
+    let reading = crate::float::FloatReading {
+        unit_id: "unit".into(),
+        string: None,
+        position: None,
+        taken_at: None,
+        volts,
+        cells: args.cells.unwrap_or(profile.cells()),
+        temperature,
+        ambient,
+        float_current: None,
+        capacity: None,
+    };
+    let c = crate::float::check_unit(profile, &reading, rules).map_err(CliError::usage)?;
+    let text = match args.format {
+        OneFormat::Json => {
+            let mut v = serde_json::to_value(&c).map_err(CliError::fail)?;
+            if let Some(o) = v.as_object_mut() {
+                o.insert("schema".into(), "restvolt.check-float/1".into());
+            }
+            serde_json::to_string_pretty(&v).map_err(CliError::fail)? + "\n"
+        }
+        OneFormat::Text => {
+            let mut s = String::new();
+            let _ = writeln!(s, "{} on float ({} cells)", profile.spec.name, c.cells);
+            let _ = writeln!(
+                s,
+                "Float   {:.3} V/cell; window {:.3}–{:.3} V/cell at {:.1} °C",
+                c.volts_per_cell,
+                c.window_volts_per_cell[0],
+                c.window_volts_per_cell[1],
+                c.compensation_celsius
+            );
+            let _ = writeln!(
+                s,
+                "State of charge cannot be read from a float voltage: rest the unit to measure it."
+            );
+            for f in &c.flags {
+                let _ = writeln!(s, "  {}: {}", f.code.as_str(), f.detail);
+            }
+            for n in &c.notes {
+                let _ = writeln!(s, "  note: {n}");
+            }
+            let _ = writeln!(s, "ACTION  {}: {}", c.action.as_str(), c.action.meaning());
+            for r in &c.reasons {
+                let _ = writeln!(
+                    s,
+                    "  - {} ({}): {}\n    source: {}",
+                    r.rule,
+                    r.action.as_str(),
+                    r.detail,
+                    r.source
+                );
+            }
+            let _ = writeln!(s, "Cautions");
+            for k in &c.cautions {
+                let t = crate::safety::caution_text(*k);
+                let _ = writeln!(s, "  ! {}: {}", t.title, t.text);
+            }
+            s
+        }
+    };
+    output::emit(None, text.as_bytes(), &[])?;
+    Ok(0)
+}
+
+/// Arguments of `restvolt calibrate`.
+#[derive(Debug, Args)]
+#[command(after_help = "Examples:
+  restvolt calibrate capacity-tests.csv --id site-agm --from agm -o site-agm.toml
+  restvolt profiles check site-agm.toml
+
+The CSV has `soc_percent` (known state of charge, e.g. from a capacity test) and
+`volts` (rested, across the unit) or `sg` (mean hydrometer reading), with
+`temp_c` or `temp_f` and optionally `cells`.")]
+pub struct CalibrateArgs {
+    /// CSV of known state of charge against rested voltage or SG
+    pub file: PathBuf,
+    /// Id of the new profile (lower case, digits, hyphens)
+    #[arg(long)]
+    pub id: String,
+    /// Base profile whose temperature coefficient, rules and shape outside the data are used
+    #[arg(long, default_value = "flooded-automotive")]
+    pub from: String,
+    /// Where to write the new profile (TOML)
+    #[arg(short, long, value_name = "PATH.toml")]
+    pub output: PathBuf,
+    /// Report format
+    #[arg(long, value_enum, default_value = "text")]
+    pub format: OneFormat,
+}
+
+/// Run `restvolt calibrate`.
+pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) -> CmdResult {
+    use crate::calibrate::{calibrate, read_points, sha256_hex, CalibrateOptions};
+    let base = store.get(&a.from).map_err(CliError::usage)?;
+    let name = a.file.display().to_string();
+    let bytes = std::fs::read(&a.file).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
+    let points = read_points(&name, bytes.as_slice(), base).map_err(CliError::usage)?;
+    let opts = CalibrateOptions {
+        new_id: a.id.clone(),
+        input_name: a
+            .file
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or(name.clone()),
+        input_sha256: sha256_hex(&bytes),
+        today: chrono::Local::now().date_naive(),
+    };
+    let c = calibrate(&points, base, &opts).map_err(CliError::usage)?;
+    let toml = c.to_toml().map_err(CliError::fail)?;
+    output::write_atomic(&a.output, toml.as_bytes(), std::slice::from_ref(&a.file))?;
+    let text = match a.format {
+        OneFormat::Json => serde_json::to_string_pretty(&c.report).map_err(CliError::fail)? + "\n",
+        OneFormat::Text => {
+            let mut s = c.report.render_text();
+            let _ = writeln!(s, "wrote {}", a.output.display());
+            s
+        }
+    };
+    output::emit(None, text.as_bytes(), &[])?;
+    Ok(0)
 }

@@ -189,6 +189,8 @@ pub struct UnitReport {
     pub flags: Vec<String>,
     /// Every reason, most urgent first.
     pub reasons: Vec<FleetReason>,
+    /// Mean SG 25/25 of the latest hydrometer reading.
+    pub sg_mean_25c: Option<f64>,
     /// Readings of this unit.
     pub readings: u64,
     /// Latest reading's time.
@@ -228,6 +230,8 @@ pub struct FleetReport {
     pub summary: Summary,
     /// Units, most urgent first.
     pub units: Vec<UnitReport>,
+    /// Strings whose latest readings were taken on float charge, with the float checks.
+    pub float_strings: Vec<crate::float::StringFloatAnalysis>,
     /// Rejected rows (first [`REJECTED_CAP`]).
     pub rejected: Vec<Rejected>,
     /// Notices from ingestion.
@@ -271,6 +275,7 @@ fn reason(action: Action, rule: RuleId, detail: String, rules: &Rules) -> FleetR
 struct Judged {
     report: UnitReport,
     peer_key: Option<(String, String)>,
+    sg_key: Option<(String, String)>,
 }
 
 /// Judge every unit and rank the fleet.
@@ -315,6 +320,38 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
                         "{delta_mv:+.0} mV per cell from the median of {} peers (robust z {z:.1})",
                         members.len()
                     ),
+                    rules,
+                ));
+            }
+        }
+    }
+
+    // Hydrometer across a string of single cells: a cell more than the rule
+    // below the string's mean (IEEE Std 450-1987 §4.4).
+    let mut sg_groups: BTreeMap<(String, String), Vec<(usize, f64)>> = BTreeMap::new();
+    for (i, j) in judged.iter().enumerate() {
+        if let (Some(k), Some(sg)) = (&j.sg_key, j.report.sg_mean_25c) {
+            sg_groups.entry(k.clone()).or_default().push((i, sg));
+        }
+    }
+    for members in sg_groups.values() {
+        if members.len() < 3 {
+            continue;
+        }
+        let mean = members.iter().map(|m| m.1).sum::<f64>() / members.len() as f64;
+        let limit = rules.get(RuleId::SgCellBelowMean);
+        for (i, sg) in members {
+            if mean - sg > limit + 1e-9 {
+                let r = &mut judged[*i].report;
+                let allowed = store
+                    .get(&r.profile)
+                    .map(|p| p.spec.equalize_allowed.value)
+                    .unwrap_or(false);
+                r.flags.push("low-cell-sg".into());
+                r.reasons.push(reason(
+                    if allowed { Action::Equalize } else { Action::CapacityTest },
+                    RuleId::SgCellBelowMean,
+                    format!("SG {sg:.3} is {:.3} below the string's mean {mean:.3} ({} cells, corrected to 25 °C)", mean - sg, members.len()),
                     rules,
                 ));
             }
@@ -390,6 +427,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
             profiles,
         },
         units,
+        float_strings: float_strings(state, store, rules),
         rejected: state.rejected.clone(),
         notices: state.notices.clone(),
     }
@@ -440,6 +478,7 @@ fn judge_unit(
                     }],
                 ),
                 peer_key: None,
+                sg_key: None,
             })
         }
     };
@@ -458,6 +497,7 @@ fn judge_unit(
     let mut interval = None;
     let mut ocv_cell = None;
     let mut freezing = None;
+    let mut sg_mean = None;
     if row.after == After::Float {
         flags.push("on-float".into());
         reasons.push(FleetReason {
@@ -482,6 +522,7 @@ fn judge_unit(
                     ocv_cell = a.ocv_per_cell_25c_volts;
                 }
                 freezing = a.freezing_point_celsius.map(|f| round(f, 1));
+                sg_mean = a.sg.as_ref().map(|g| round(g.mean_25c, 4));
                 for f in &a.flags {
                     flags.push(f.code.as_str().to_string());
                 }
@@ -652,11 +693,20 @@ fn judge_unit(
     report.ohmic_rise_percent = ohmic_rise;
     report.coldest_celsius = coldest.map(|c| round(c, 1));
     report.freezing_point_celsius = freezing;
+    report.sg_mean_25c = sg_mean;
     report.heat_ageing_factor = ageing.map(|a| round(a, 2));
     report.history = history;
+    let sg_key = match (&row.site, &row.string, row.cells.unwrap_or(profile.cells())) {
+        (site, Some(st), 1) => Some((
+            format!("{}/{st}", site.as_deref().unwrap_or("")),
+            row.profile.to_string(),
+        )),
+        _ => None,
+    };
     Some(Judged {
         report,
         peer_key: peer_key.filter(|(g, _)| !g.is_empty()),
+        sg_key,
     })
 }
 
@@ -680,6 +730,7 @@ fn empty_report(
         ocv_per_cell_25c_volts: None,
         flags: Vec::new(),
         reasons,
+        sg_mean_25c: None,
         readings: s.readings,
         latest_at: row.taken_at.format("%Y-%m-%d %H:%M").to_string(),
         trend_percent_per_30_days: None,
@@ -694,4 +745,83 @@ fn empty_report(
         history: Vec::new(),
         latest_temperature: row.temperature.map(|t| t.0),
     }
+}
+
+/// Group units whose latest reading is on float by (site, string, profile) and
+/// run the float checks on each group. Earlier float visits of the group's
+/// first unit give the string-current history (string voltage taken as that
+/// unit's voltage times the number of units).
+fn float_strings(
+    state: &FleetState,
+    store: &ProfileStore,
+    rules: &Rules,
+) -> Vec<crate::float::StringFloatAnalysis> {
+    let mut groups: BTreeMap<(String, String, String), Vec<&UnitSummary>> = BTreeMap::new();
+    for s in state.units.values() {
+        let Some(latest) = s.latest() else { continue };
+        if latest.row.after != After::Float || latest.row.volts.is_none() {
+            continue;
+        }
+        let r = &latest.row;
+        let key = (
+            r.site.as_deref().unwrap_or("").to_string(),
+            r.string.as_deref().unwrap_or(&r.unit_id).to_string(),
+            r.profile.to_string(),
+        );
+        groups.entry(key).or_default().push(s);
+    }
+    let mut out = Vec::new();
+    for ((site, string, profile_id), members) in groups {
+        let Ok(profile) = store.get(&profile_id) else {
+            continue;
+        };
+        let name = if site.is_empty() {
+            string.clone()
+        } else {
+            format!("{site} / {string}")
+        };
+        let readings: Vec<crate::float::FloatReading> = members
+            .iter()
+            .filter_map(|s| s.latest())
+            .filter_map(|h| {
+                let r = &h.row;
+                Some(crate::float::FloatReading {
+                    unit_id: r.unit_id.to_string(),
+                    string: Some(name.clone()),
+                    position: r.position,
+                    taken_at: Some(r.taken_at),
+                    volts: r.volts?,
+                    cells: r.cells.unwrap_or(profile.cells()),
+                    temperature: r.temperature,
+                    ambient: r.ambient,
+                    float_current: r.float_current,
+                    capacity: None,
+                })
+            })
+            .collect();
+        let n_units = readings.len() as f64;
+        let previous: Vec<_> = members
+            .first()
+            .map(|s| {
+                s.history
+                    .iter()
+                    .rev()
+                    .skip(1)
+                    .rev()
+                    .filter(|h| h.after == After::Float)
+                    .filter_map(|h| {
+                        Some((
+                            h.taken_at,
+                            h.row.float_current?,
+                            crate::units::Volts(h.row.volts?.0 * n_units),
+                        ))
+                    })
+                    .collect()
+            })
+            .unwrap_or_default();
+        if let Ok(a) = crate::float::analyse_string(profile, &name, &readings, &previous, rules) {
+            out.push(a);
+        }
+    }
+    out
 }

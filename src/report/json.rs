@@ -43,6 +43,11 @@
 //!     `freezing_point_celsius`: electrolyte freezing point at the latest
 //!     state of charge, °C.
 //!   - `heat_ageing_factor`: mean heat-ageing factor (1 = as at 25 °C).
+//!   - `sg_mean_25c`: mean SG 25/25 of the latest hydrometer reading.
+//! - `float_strings`: per string on float: `string`, `units`,
+//!   `average_volts_per_cell`, `spread_volts_per_cell`, `temperature_spread_c`,
+//!   `per_unit` checks, `flags`, `action`, `reasons`, `fully_charged_on_float`,
+//!   `rest_test_units`, `state_of_charge_note` (never a state of charge).
 //! - `rejected`: `{file, line, reason}` per rejected record (at most the
 //!   first 1000; `summary.rows_rejected` is always the full count).
 //! - `notices`: messages from reading the input.
@@ -85,7 +90,7 @@ mod tests {
         let text = Json.render(&report, &fixture::ctx(&store));
         let v: serde_json::Value = serde_json::from_str(&text).unwrap();
         assert_eq!(v["schema"], "restvolt.fleet/1");
-        for k in ["summary", "units", "rejected", "notices"] {
+        for k in ["summary", "units", "float_strings", "rejected", "notices"] {
             assert!(v.get(k).is_some(), "{k}");
         }
         assert_eq!(v["units"].as_array().unwrap().len(), report.units.len());
@@ -116,10 +121,11 @@ mod tests {
             "coldest_celsius",
             "freezing_point_celsius",
             "heat_ageing_factor",
+            "sg_mean_25c",
         ] {
             assert!(unit.contains_key(k), "unit field {k}");
         }
-        assert_eq!(unit.len(), 23, "a unit field is undocumented: {unit:?}");
+        assert_eq!(unit.len(), 24, "a unit field is undocumented: {unit:?}");
         let r = v["rejected"][0].as_object().unwrap();
         assert!(r.contains_key("file") && r.contains_key("line") && r.contains_key("reason"));
     }

@@ -1,0 +1,325 @@
+//! `restvolt fleet` and `restvolt demo`: ingest many readings, diagnose, rank, report.
+
+use super::check::load_rules;
+use super::{output, CliError, CmdResult, EXIT_REJECTED_ROWS};
+use crate::correct::Setup;
+use crate::fleet::analysis::{finish, FleetReport, FleetSettings, FleetState};
+use crate::fleet::ingest::{ingest, IngestOptions};
+use crate::profile::store::ProfileStore;
+use crate::report::{self, FormatKind, ReportContext};
+use crate::units;
+use clap::{Args, ValueEnum};
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+
+/// Fleet report formats.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum FleetFormatArg {
+    /// Ranked table for a terminal
+    Table,
+    /// One row per unit
+    Csv,
+    /// Versioned JSON (schema restvolt.fleet/1)
+    Json,
+    /// Markdown for a ticket or a wiki
+    Markdown,
+    /// One self-contained HTML page with charts
+    Html,
+}
+
+impl From<FleetFormatArg> for FormatKind {
+    fn from(f: FleetFormatArg) -> FormatKind {
+        match f {
+            FleetFormatArg::Table => FormatKind::Table,
+            FleetFormatArg::Csv => FormatKind::Csv,
+            FleetFormatArg::Json => FormatKind::Json,
+            FleetFormatArg::Markdown => FormatKind::Markdown,
+            FleetFormatArg::Html => FormatKind::Html,
+        }
+    }
+}
+
+/// Arguments of `restvolt fleet`.
+#[derive(Debug, Args)]
+#[command(after_help = "Examples:
+  restvolt fleet demo-data/fleet.csv
+  restvolt fleet readings-*.csv --profile agm --format html -o fleet.html
+  cat export.csv | restvolt fleet - --delimiter ';' --format json
+
+Exit status: 0 every row accepted; 3 some rows rejected (the report is complete
+for the rest, and lists each rejected row with file:line and reason); 2 usage
+error; 1 failure.")]
+pub struct FleetArgs {
+    /// Input CSV files (`-` for standard input)
+    #[arg(required = true)]
+    pub files: Vec<PathBuf>,
+    /// Profile for rows without a `profile` column or value
+    #[arg(long)]
+    pub profile: Option<String>,
+    /// Field delimiter: , ; or tab [default: detected from the header]
+    #[arg(long)]
+    pub delimiter: Option<String>,
+    /// Coldest temperature expected before the next visit (freeze risk): -20C
+    #[arg(long, allow_hyphen_values = true)]
+    pub min_temp: Option<String>,
+    /// Rules overrides (TOML, see `restvolt rules`)
+    #[arg(long, value_name = "FILE")]
+    pub rules: Option<PathBuf>,
+    /// Meter DC-volts accuracy as PERCENT%+COUNTS
+    #[arg(long, default_value = "0.5%+2")]
+    pub meter: String,
+    /// Meter display resolution in volts
+    #[arg(long, default_value = "0.01")]
+    pub resolution: String,
+    /// Report format
+    #[arg(long, value_enum, default_value = "table")]
+    pub format: FleetFormatArg,
+    /// Write the report here (whole or not at all) instead of standard output
+    #[arg(short, long, value_name = "PATH")]
+    pub output: Option<PathBuf>,
+    /// Fleet name for the report header
+    #[arg(long, default_value = "Fleet")]
+    pub name: String,
+}
+
+fn parse_delimiter(s: &str) -> Result<u8, CliError> {
+    match s {
+        "," | "comma" => Ok(b','),
+        ";" | "semicolon" => Ok(b';'),
+        "\t" | "tab" | "\\t" => Ok(b'\t'),
+        other => Err(CliError::usage(format!(
+            "--delimiter: '{other}' is not one of , ; tab"
+        ))),
+    }
+}
+
+/// Analyse readers into a report.
+pub fn analyse_files(
+    files: &[PathBuf],
+    store: &ProfileStore,
+    settings: &FleetSettings,
+    opts: &IngestOptions,
+) -> Result<FleetReport, CliError> {
+    let mut state = FleetState::default();
+    for path in files {
+        let name = path.display().to_string();
+        let mut rows = Vec::new();
+        let mut rejects = Vec::new();
+        let stats = if path.as_os_str() == "-" {
+            ingest(
+                "-",
+                std::io::stdin().lock(),
+                opts,
+                &mut |r| rows.push(r),
+                &mut |r| rejects.push(r),
+            )
+        } else {
+            let f =
+                std::fs::File::open(path).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
+            ingest(
+                &name,
+                std::io::BufReader::new(f),
+                opts,
+                &mut |r| rows.push(r),
+                &mut |r| rejects.push(r),
+            )
+        }
+        .map_err(CliError::usage)?;
+        for r in rows {
+            state.add_row(r, store, settings);
+        }
+        for r in rejects {
+            state.add_rejected(r);
+        }
+        state.rows_read += stats.rows_read;
+        state.rows_accepted += stats.rows_accepted;
+        for n in stats.notices {
+            eprintln!("restvolt: note: {n}");
+            state.notices.push(n);
+        }
+    }
+    Ok(finish(&state, store, settings))
+}
+
+/// Run `restvolt fleet`.
+pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
+    let rules = load_rules(&args.rules)?;
+    let meter =
+        units::parse_meter(&args.meter).map_err(|e| CliError::usage(format!("--meter: {e}")))?;
+    let resolution = units::parse_decimal(&args.resolution, "a resolution in volts, like 0.01")
+        .map_err(|e| CliError::usage(format!("--resolution: {e}")))?;
+    let min_temperature = args
+        .min_temp
+        .as_deref()
+        .map(units::parse_temperature)
+        .transpose()
+        .map_err(|e| CliError::usage(format!("--min-temp: {e}")))?;
+    if let Some(p) = &args.profile {
+        store.get(p).map_err(CliError::usage)?;
+    }
+    let settings = FleetSettings {
+        setup: Setup {
+            meter,
+            resolution: units::Volts(resolution),
+            ..Setup::default()
+        },
+        rules,
+        min_temperature,
+    };
+    let opts = IngestOptions {
+        default_profile: args.profile.clone(),
+        delimiter: args.delimiter.as_deref().map(parse_delimiter).transpose()?,
+        known_profiles: Some(store.iter().map(|p| p.id().to_string()).collect()),
+        now: Some(chrono::Local::now().naive_local() + chrono::Duration::days(1)),
+    };
+    let report = analyse_files(&args.files, store, &settings, &opts)?;
+    write_report(
+        &report,
+        store,
+        args.format.into(),
+        args.output.as_deref(),
+        &args.files,
+        &args.name,
+    )?;
+    Ok(if report.summary.rows_rejected > 0 {
+        EXIT_REJECTED_ROWS
+    } else {
+        0
+    })
+}
+
+/// Render and write a report.
+pub fn write_report(
+    report: &FleetReport,
+    store: &ProfileStore,
+    format: FormatKind,
+    path: Option<&Path>,
+    inputs: &[PathBuf],
+    name: &str,
+) -> Result<(), CliError> {
+    let to_terminal = path.is_none() && std::io::stdout().is_terminal();
+    let ctx = ReportContext {
+        store,
+        generated_at: chrono::Local::now().format("%Y-%m-%d %H:%M").to_string(),
+        fleet_name: name.to_string(),
+        colour: to_terminal && std::env::var_os("NO_COLOR").is_none(),
+    };
+    let text = report::render(format, report, &ctx);
+    output::emit(path, text.as_bytes(), inputs)
+}
+
+/// Arguments of `restvolt demo`.
+#[derive(Debug, Args)]
+#[command(after_help = "Examples:\n  restvolt demo\n  restvolt demo --html demo-report.html")]
+pub struct DemoArgs {
+    /// Also write the HTML report to this path
+    #[arg(long, value_name = "PATH")]
+    pub html: Option<PathBuf>,
+    /// Format printed on standard output
+    #[arg(long, value_enum, default_value = "table")]
+    pub format: FleetFormatArg,
+}
+
+/// The bundled demo fleet (invented), embedded so `restvolt demo` works anywhere.
+pub const DEMO_FLEET: &str = include_str!("../../demo-data/fleet.csv");
+
+/// Run `restvolt demo`.
+pub fn demo(args: DemoArgs, store: &ProfileStore) -> CmdResult {
+    let settings = FleetSettings {
+        min_temperature: None,
+        ..FleetSettings::default()
+    };
+    let opts = IngestOptions {
+        known_profiles: Some(store.iter().map(|p| p.id().to_string()).collect()),
+        ..IngestOptions::default()
+    };
+    let mut state = FleetState::default();
+    let mut rows = Vec::new();
+    let mut rejects = Vec::new();
+    let stats = ingest(
+        "demo-data/fleet.csv",
+        DEMO_FLEET.as_bytes(),
+        &opts,
+        &mut |r| rows.push(r),
+        &mut |r| rejects.push(r),
+    )
+    .map_err(CliError::fail)?;
+    for r in rows {
+        state.add_row(r, store, &settings);
+    }
+    for r in rejects {
+        state.add_rejected(r);
+    }
+    state.rows_read = stats.rows_read;
+    state.rows_accepted = stats.rows_accepted;
+    state.notices = stats.notices;
+    let report = finish(&state, store, &settings);
+    let name = "Demo fleet: Larchmere Rural Networks (invented)";
+    if let Some(p) = &args.html {
+        write_report(&report, store, FormatKind::Html, Some(p), &[], name)?;
+    }
+    write_report(&report, store, args.format.into(), None, &[], name)?;
+    Ok(0)
+}
+
+/// Arguments of `restvolt generate`.
+#[derive(Debug, Args)]
+#[command(
+    after_help = "Examples:\n  restvolt generate --units 500 --days 180 --seed 1 -o fleet.csv\n  restvolt generate --units 50000 --days 140 --seed 7 -o big.csv"
+)]
+pub struct GenerateArgs {
+    /// Number of units
+    #[arg(long, default_value = "100")]
+    pub units: u32,
+    /// Days the readings span
+    #[arg(long, default_value = "90")]
+    pub days: u32,
+    /// Random seed (the same seed gives the same file)
+    #[arg(long, default_value = "1")]
+    pub seed: u64,
+    /// Readings per unit [default: one a week plus one]
+    #[arg(long)]
+    pub readings_per_unit: Option<u32>,
+    /// Output file (`-` or absent: standard output)
+    #[arg(short, long, value_name = "PATH")]
+    pub output: Option<PathBuf>,
+}
+
+/// Run `restvolt generate`.
+pub fn generate(args: GenerateArgs) -> CmdResult {
+    use crate::fleet::generate::{generate, GenerateOptions};
+    let opts = GenerateOptions {
+        units: args.units,
+        days: args.days,
+        seed: args.seed,
+        readings_per_unit: args.readings_per_unit,
+    };
+    match args.output.as_deref() {
+        Some(p) if p != Path::new("-") => {
+            let dir = p
+                .parent()
+                .filter(|d| !d.as_os_str().is_empty())
+                .unwrap_or(Path::new("."));
+            let tmp = dir.join(format!(".restvolt-generate-{}.tmp", std::process::id()));
+            let fail = |e: std::io::Error| CliError::fail(format!("writing {}: {e}", p.display()));
+            let f = std::fs::File::create(&tmp).map_err(fail)?;
+            let mut w = std::io::BufWriter::new(f);
+            let summary = generate(&opts, &mut w).map_err(fail)?;
+            std::io::Write::flush(&mut w).map_err(fail)?;
+            drop(w);
+            std::fs::rename(&tmp, p).map_err(fail)?;
+            let s = serde_json::to_string(&summary).map_err(CliError::fail)?;
+            eprintln!("restvolt: wrote {}: {s}", p.display());
+        }
+        _ => {
+            let out = std::io::stdout().lock();
+            let mut w = std::io::BufWriter::new(out);
+            match generate(&opts, &mut w).and_then(|_| std::io::Write::flush(&mut w)) {
+                Ok(()) => {}
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => {}
+                Err(e) => return Err(CliError::fail(e)),
+            }
+        }
+    }
+    Ok(0)
+}

@@ -1,0 +1,153 @@
+#![allow(clippy::unwrap_used)]
+//! The fleet command on a fixture fleet with known injected faults
+//! (demo-data/fleet.csv; its README lists the faults).
+
+mod common;
+use common::{repo, restvolt, tmp};
+use serde_json::Value;
+
+fn fleet_json() -> (Value, i32) {
+    let out = restvolt()
+        .args(["fleet", "--format", "json"])
+        .arg(repo("demo-data/fleet.csv"))
+        .output()
+        .unwrap();
+    assert!(!String::from_utf8_lossy(&out.stderr).contains("panicked"));
+    (
+        serde_json::from_slice(&out.stdout).unwrap(),
+        out.status.code().unwrap(),
+    )
+}
+
+fn unit<'a>(v: &'a Value, id: &str) -> &'a Value {
+    v["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|u| u["unit_id"] == id)
+        .unwrap()
+}
+
+fn flags(u: &Value) -> Vec<String> {
+    u["flags"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f.as_str().unwrap().to_string())
+        .collect()
+}
+
+#[test]
+fn injected_faults_are_flagged_with_the_expected_action() {
+    let (v, code) = fleet_json();
+    assert_eq!(code, 3, "two rows are bad on purpose: exit 3");
+    for (id, flag, action) in [
+        ("TD-V07", "suspect-shorted-cell", "replace"),
+        ("TD-V03", "sulfation-risk", "recharge-now"),
+        ("TD-V05", "short-rest", "remeasure"),
+        ("CH-B3", "check-connection", "remeasure"),
+        ("FM-C07", "low-cell-sg", "recharge-now"),
+        ("TD-V09", "post-charge-shortfall", "recharge-now"),
+        ("CH-A2", "peer-outlier", "recharge-now"),
+        ("TD-V03", "freeze-risk", "recharge-now"),
+        ("CH-A4", "ohmic-rise", "capacity-test"),
+    ] {
+        let u = unit(&v, id);
+        assert!(flags(u).contains(&flag.to_string()), "{id}: {:?}", flags(u));
+        assert_eq!(u["action"], action, "{id}");
+        if id == "TD-V03" {
+            // Deeply discharged: the estimate is well below the profile's urgent threshold.
+            assert!(u["soc_percent"].as_f64().unwrap() < 20.0);
+        }
+        for r in u["reasons"].as_array().unwrap() {
+            assert!(
+                !r["source"].as_str().unwrap().is_empty(),
+                "{id}: a reason without a source"
+            );
+        }
+    }
+}
+
+#[test]
+fn healthy_units_raise_nothing() {
+    let (v, _) = fleet_json();
+    for id in ["TD-V01", "TD-V02", "CH-A1", "CH-B1", "FM-C01", "FM-C03"] {
+        let u = unit(&v, id);
+        assert_eq!(u["action"], "serviceable", "{id}");
+        assert!(flags(u).is_empty(), "{id}: {:?}", flags(u));
+    }
+}
+
+#[test]
+fn rows_read_equal_accepted_plus_rejected_with_line_numbers() {
+    let (v, _) = fleet_json();
+    let s = &v["summary"];
+    assert_eq!(
+        s["rows_read"].as_u64().unwrap(),
+        s["rows_accepted"].as_u64().unwrap() + s["rows_rejected"].as_u64().unwrap()
+    );
+    assert_eq!(s["rows_rejected"], 2);
+    let rej = v["rejected"].as_array().unwrap();
+    let lines: Vec<u64> = rej.iter().map(|r| r["line"].as_u64().unwrap()).collect();
+    assert_eq!(lines, vec![182, 183]);
+    assert!(rej[0]["reason"].as_str().unwrap().contains("taken_at"));
+    assert!(rej[1]["reason"].as_str().unwrap().contains("volts"));
+    assert_eq!(v["schema"], "restvolt.fleet/1");
+}
+
+#[test]
+fn every_format_renders_and_the_output_file_is_written_whole() {
+    let dir = tmp();
+    for fmt in ["table", "csv", "json", "markdown"] {
+        let path = dir.path().join(format!("report.{fmt}"));
+        let out = restvolt()
+            .args(["fleet", "--format", fmt, "-o"])
+            .arg(&path)
+            .arg(repo("demo-data/fleet.csv"))
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(3), "{fmt}");
+        let text = std::fs::read_to_string(&path).unwrap();
+        assert!(text.contains("TD-V07"), "{fmt}");
+    }
+    // Refuses to write over its own input.
+    let input = dir.path().join("in.csv");
+    std::fs::copy(repo("demo-data/fleet.csv"), &input).unwrap();
+    let out = restvolt()
+        .args(["fleet", "-o"])
+        .arg(&input)
+        .arg(&input)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
+}
+
+#[test]
+fn demo_runs_with_no_arguments() {
+    let out = restvolt().arg("demo").output().unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("TD-V07"));
+}
+
+#[test]
+fn generated_fleet_round_trips_through_the_analysis() {
+    let dir = tmp();
+    let path = dir.path().join("gen.csv");
+    restvolt()
+        .args([
+            "generate", "--units", "300", "--days", "60", "--seed", "5", "-o",
+        ])
+        .arg(&path)
+        .assert()
+        .success();
+    let out = restvolt()
+        .args(["fleet", "--format", "json"])
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["summary"]["units"], 300);
+    assert_eq!(v["summary"]["rows_rejected"], 0);
+}
