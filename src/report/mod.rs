@@ -295,6 +295,21 @@ mod tests {
     }
 
     #[test]
+    fn an_empty_fleet_renders_in_every_format() {
+        use crate::fleet::analysis::{finish, FleetSettings, FleetState};
+        let store = ProfileStore::builtin().unwrap();
+        let report = finish(&FleetState::default(), &store, &FleetSettings::default());
+        let ctx = fixture::ctx(&store);
+        for k in FormatKind::ALL {
+            assert!(!render(k, &report, &ctx).is_empty(), "{k}");
+        }
+        let csv = render(FormatKind::Csv, &report, &ctx);
+        assert_eq!(csv.lines().count(), 1, "header only");
+        let html = render(FormatKind::Html, &report, &ctx);
+        assert!(html.contains("No unit needs action"));
+    }
+
+    #[test]
     fn truncate_counts_characters() {
         assert_eq!(truncate("abc", 3), "abc");
         assert_eq!(truncate("abcd", 3), "ab…");
