@@ -1,5 +1,5 @@
 //! The report as JSON: `serde_json` pretty output of
-//! [`FleetReport`](crate::fleet::analysis::FleetReport) itself.
+//! [`crate::fleet::analysis::FleetReport`] itself.
 //!
 //! This layout is a public promise, schema id `restvolt.fleet/1`. A later
 //! version may add fields; removing or changing the meaning of one changes the

@@ -16,6 +16,7 @@
 
 pub mod charts;
 pub mod csv;
+pub mod html;
 pub mod json;
 pub mod markdown;
 pub mod table;
@@ -99,7 +100,7 @@ impl FormatKind {
             FormatKind::Csv => &csv::Csv,
             FormatKind::Json => &json::Json,
             FormatKind::Markdown => &markdown::Markdown,
-            FormatKind::Html => &markdown::Markdown, // HTML-PENDING
+            FormatKind::Html => &html::Html,
         }
     }
 }
@@ -203,7 +204,6 @@ pub(crate) fn soc_text(u: &UnitReport) -> String {
 
 /// The evidence numbers of a unit, as `(what, value with unit)` pairs, only
 /// those that are known.
-#[allow(dead_code)] // the HTML page (next commit) uses it
 pub(crate) fn evidence(u: &UnitReport) -> Vec<(&'static str, String)> {
     let mut out = Vec::new();
     if let Some(v) = u.ocv_per_cell_25c_volts {
@@ -243,7 +243,12 @@ pub(crate) fn evidence(u: &UnitReport) -> Vec<(&'static str, String)> {
     }
     out.push((
         "latest reading",
-        format!("{} ({} readings)", u.latest_at, u.readings),
+        format!(
+            "{} ({} reading{})",
+            u.latest_at,
+            u.readings,
+            if u.readings == 1 { "" } else { "s" }
+        ),
     ));
     out
 }
@@ -287,6 +292,21 @@ mod tests {
                 assert!(out.contains(&u.unit_id), "{k}: {} missing", u.unit_id);
             }
         }
+    }
+
+    #[test]
+    fn an_empty_fleet_renders_in_every_format() {
+        use crate::fleet::analysis::{finish, FleetSettings, FleetState};
+        let store = ProfileStore::builtin().unwrap();
+        let report = finish(&FleetState::default(), &store, &FleetSettings::default());
+        let ctx = fixture::ctx(&store);
+        for k in FormatKind::ALL {
+            assert!(!render(k, &report, &ctx).is_empty(), "{k}");
+        }
+        let csv = render(FormatKind::Csv, &report, &ctx);
+        assert_eq!(csv.lines().count(), 1, "header only");
+        let html = render(FormatKind::Html, &report, &ctx);
+        assert!(html.contains("No unit needs action"));
     }
 
     #[test]
