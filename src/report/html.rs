@@ -768,6 +768,11 @@ mod tests {
     use crate::report::fixture;
     use scraper::{Html as Page, Selector};
 
+    #[test]
+    fn snapshot_html() {
+        insta::assert_snapshot!(page());
+    }
+
     fn page() -> String {
         let (report, store) = fixture::report();
         Html.render(&report, &fixture::ctx(&store))

@@ -85,6 +85,12 @@ mod tests {
     use crate::report::fixture;
 
     #[test]
+    fn snapshot_json() {
+        let (report, store) = fixture::report();
+        insta::assert_snapshot!(Json.render(&report, &fixture::ctx(&store)));
+    }
+
+    #[test]
     fn parses_with_the_promised_fields() {
         let (report, store) = fixture::report();
         let text = Json.render(&report, &fixture::ctx(&store));
