@@ -96,10 +96,7 @@ impl Profile {
     pub fn from_toml(text: &str, origin: &str) -> Result<Profile, ProfileError> {
         let spec: ProfileFile = toml::from_str(text).map_err(|e| ProfileError::Syntax {
             origin: origin.to_string(),
-            line: e
-                .span()
-                .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
-                .unwrap_or(1),
+            line: toml_error_line(text, &e),
             message: e.message().to_string(),
         })?;
         Profile::from_spec(spec, origin)
@@ -222,6 +219,13 @@ impl Profile {
     }
 }
 
+/// The 1-based line of `text` a TOML error points at (1 when it has no position).
+pub fn toml_error_line(text: &str, e: &toml::de::Error) -> usize {
+    e.span()
+        .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
+        .unwrap_or(1)
+}
+
 fn invalid(origin: &str, key: &str, problem: String) -> ProfileError {
     ProfileError::Invalid {
         origin: origin.to_string(),
@@ -251,6 +255,165 @@ fn check_range(
     Ok(())
 }
 
+/// Allowed range of every numeric value: (key, value, low, high, unit).
+type RangeRow<'a> = (&'static str, f64, f64, f64, &'static str);
+
+fn ranges(s: &ProfileFile) -> Vec<RangeRow<'_>> {
+    let (e, r, t) = (&s.electrolyte, &s.rest, &s.thresholds);
+    let mut rows = vec![
+        (
+            "electrolyte.full_charge_sg.value",
+            e.full_charge_sg.value,
+            1.0,
+            1.4,
+            "",
+        ),
+        (
+            "electrolyte.discharged_sg.value",
+            e.discharged_sg.value,
+            1.0,
+            1.4,
+            "",
+        ),
+        (
+            "rest.minimum_hours.value",
+            r.minimum_hours.value,
+            0.0,
+            720.0,
+            "h",
+        ),
+        (
+            "rest.preferred_hours.value",
+            r.preferred_hours.value,
+            0.1,
+            720.0,
+            "h",
+        ),
+        (
+            "rest.settling_limit_mv_per_h.value",
+            r.settling_limit_mv_per_h.value,
+            0.01,
+            100.0,
+            "mV/h",
+        ),
+        (
+            "rest.surface_charge_mv_per_cell_at_1h.value",
+            r.surface_charge_mv_per_cell_at_1h.value,
+            0.0,
+            500.0,
+            "mV",
+        ),
+        (
+            "rest.recovery_mv_per_cell_at_1h.value",
+            r.recovery_mv_per_cell_at_1h.value,
+            0.0,
+            500.0,
+            "mV",
+        ),
+        (
+            "thresholds.recharge_below_soc_percent.value",
+            t.recharge_below_soc_percent.value,
+            0.0,
+            100.0,
+            "%",
+        ),
+        (
+            "thresholds.urgent_below_soc_percent.value",
+            t.urgent_below_soc_percent.value,
+            0.0,
+            100.0,
+            "%",
+        ),
+        (
+            "thresholds.beyond_full_allowance_mv_per_cell.value",
+            t.beyond_full_allowance_mv_per_cell.value,
+            0.0,
+            500.0,
+            "mV",
+        ),
+        (
+            "tolerance.curve_mv_per_cell.value",
+            s.tolerance.curve_mv_per_cell.value,
+            0.0,
+            200.0,
+            "mV",
+        ),
+        (
+            "self_discharge.soc_percent_per_30_days_at_25c.value",
+            s.self_discharge.soc_percent_per_30_days_at_25c.value,
+            0.0,
+            50.0,
+            "%",
+        ),
+    ];
+    if let (CoefficientKind::Fixed, Some(c)) = (
+        s.temperature.coefficient,
+        &s.temperature.ocv_mv_per_k_per_cell,
+    ) {
+        rows.push((
+            "temperature.ocv_mv_per_k_per_cell.value",
+            c.value,
+            -2.0,
+            2.0,
+            "mV/K per cell (an OCV coefficient; the −3 mV/K charging compensation does not belong here)",
+        ));
+    }
+    if let Some(f) = &s.float {
+        rows.extend([
+            (
+                "float.window_low_volts_per_cell.value",
+                f.window_low_volts_per_cell.value,
+                2.0,
+                2.6,
+                "V",
+            ),
+            (
+                "float.window_high_volts_per_cell.value",
+                f.window_high_volts_per_cell.value,
+                2.0,
+                2.6,
+                "V",
+            ),
+            (
+                "float.minimum_volts_per_cell.value",
+                f.minimum_volts_per_cell.value,
+                2.0,
+                2.6,
+                "V",
+            ),
+            (
+                "float.compensation_mv_per_k_per_cell.value",
+                f.compensation_mv_per_k_per_cell.value,
+                -10.0,
+                0.0,
+                "mV/K",
+            ),
+            (
+                "float.compensation_max_celsius.value",
+                f.compensation_max_celsius.value,
+                0.0,
+                70.0,
+                "°C",
+            ),
+            (
+                "float.compensation_min_celsius.value",
+                f.compensation_min_celsius.value,
+                -40.0,
+                25.0,
+                "°C",
+            ),
+            (
+                "float.expected_current_ma_per_ah.value",
+                f.expected_current_ma_per_ah.value,
+                0.0,
+                100.0,
+                "mA/Ah",
+            ),
+        ]);
+    }
+    rows
+}
+
 fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
     let id_ok = !s.id.is_empty()
         && s.id
@@ -270,23 +433,10 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             format!("{} cells: expected 1–400", s.cells.value),
         ));
     }
+    for (key, v, lo, hi, unit) in ranges(s) {
+        check_range(origin, key, v, lo, hi, unit)?;
+    }
     let e = &s.electrolyte;
-    check_range(
-        origin,
-        "electrolyte.full_charge_sg.value",
-        e.full_charge_sg.value,
-        1.0,
-        1.4,
-        "",
-    )?;
-    check_range(
-        origin,
-        "electrolyte.discharged_sg.value",
-        e.discharged_sg.value,
-        1.0,
-        1.4,
-        "",
-    )?;
     if e.discharged_sg.value >= e.full_charge_sg.value {
         return Err(invalid(
             origin,
@@ -297,71 +447,14 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             ),
         ));
     }
-    let r = &s.rest;
-    check_range(
-        origin,
-        "rest.minimum_hours.value",
-        r.minimum_hours.value,
-        0.0,
-        720.0,
-        "h",
-    )?;
-    check_range(
-        origin,
-        "rest.preferred_hours.value",
-        r.preferred_hours.value,
-        0.1,
-        720.0,
-        "h",
-    )?;
-    if r.minimum_hours.value > r.preferred_hours.value {
+    if s.rest.minimum_hours.value > s.rest.preferred_hours.value {
         return Err(invalid(
             origin,
             "rest",
             "minimum_hours must not exceed preferred_hours".into(),
         ));
     }
-    check_range(
-        origin,
-        "rest.settling_limit_mv_per_h.value",
-        r.settling_limit_mv_per_h.value,
-        0.01,
-        100.0,
-        "mV/h",
-    )?;
-    check_range(
-        origin,
-        "rest.surface_charge_mv_per_cell_at_1h.value",
-        r.surface_charge_mv_per_cell_at_1h.value,
-        0.0,
-        500.0,
-        "mV",
-    )?;
-    check_range(
-        origin,
-        "rest.recovery_mv_per_cell_at_1h.value",
-        r.recovery_mv_per_cell_at_1h.value,
-        0.0,
-        500.0,
-        "mV",
-    )?;
     let t = &s.thresholds;
-    check_range(
-        origin,
-        "thresholds.recharge_below_soc_percent.value",
-        t.recharge_below_soc_percent.value,
-        0.0,
-        100.0,
-        "%",
-    )?;
-    check_range(
-        origin,
-        "thresholds.urgent_below_soc_percent.value",
-        t.urgent_below_soc_percent.value,
-        0.0,
-        100.0,
-        "%",
-    )?;
     if t.urgent_below_soc_percent.value > t.recharge_below_soc_percent.value {
         return Err(invalid(
             origin,
@@ -369,31 +462,19 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             "urgent_below_soc_percent must not exceed recharge_below_soc_percent".into(),
         ));
     }
-    check_range(
-        origin,
-        "thresholds.beyond_full_allowance_mv_per_cell.value",
-        t.beyond_full_allowance_mv_per_cell.value,
-        0.0,
-        500.0,
-        "mV",
-    )?;
-    check_range(
-        origin,
-        "tolerance.curve_mv_per_cell.value",
-        s.tolerance.curve_mv_per_cell.value,
-        0.0,
-        200.0,
-        "mV",
-    )?;
-    check_range(
-        origin,
-        "self_discharge.soc_percent_per_30_days_at_25c.value",
-        s.self_discharge.soc_percent_per_30_days_at_25c.value,
-        0.0,
-        50.0,
-        "%",
-    )?;
-    match (s.temperature.coefficient, &s.temperature.ocv_mv_per_k_per_cell) {
+    if let Some(f) = &s.float {
+        if f.window_low_volts_per_cell.value >= f.window_high_volts_per_cell.value {
+            return Err(invalid(
+                origin,
+                "float",
+                "window_low must be below window_high".into(),
+            ));
+        }
+    }
+    match (
+        s.temperature.coefficient,
+        &s.temperature.ocv_mv_per_k_per_cell,
+    ) {
         (CoefficientKind::Fixed, None) => {
             return Err(invalid(
                 origin,
@@ -401,14 +482,6 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
                 "required when coefficient = \"fixed\"".into(),
             ))
         }
-        (CoefficientKind::Fixed, Some(c)) => check_range(
-            origin,
-            "temperature.ocv_mv_per_k_per_cell.value",
-            c.value,
-            -2.0,
-            2.0,
-            "mV/K per cell (an OCV coefficient; the −3 mV/K charging compensation does not belong here)",
-        )?,
         (CoefficientKind::Electrolyte, Some(_)) => {
             return Err(invalid(
                 origin,
@@ -416,7 +489,7 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
                 "only allowed with coefficient = \"fixed\"".into(),
             ))
         }
-        (CoefficientKind::Electrolyte, None) => {}
+        _ => {}
     }
     match s.curve.kind {
         CurveKind::Derived if !s.curve.points.is_empty() => Err(invalid(
@@ -430,73 +503,7 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             "kind = \"points\" needs at least two [soc_percent, volts_per_cell] points".into(),
         )),
         _ => Ok(()),
-    }?;
-    if let Some(f) = &s.float {
-        check_range(
-            origin,
-            "float.window_low_volts_per_cell.value",
-            f.window_low_volts_per_cell.value,
-            2.0,
-            2.6,
-            "V",
-        )?;
-        check_range(
-            origin,
-            "float.window_high_volts_per_cell.value",
-            f.window_high_volts_per_cell.value,
-            2.0,
-            2.6,
-            "V",
-        )?;
-        check_range(
-            origin,
-            "float.minimum_volts_per_cell.value",
-            f.minimum_volts_per_cell.value,
-            2.0,
-            2.6,
-            "V",
-        )?;
-        if f.window_low_volts_per_cell.value >= f.window_high_volts_per_cell.value {
-            return Err(invalid(
-                origin,
-                "float",
-                "window_low must be below window_high".into(),
-            ));
-        }
-        check_range(
-            origin,
-            "float.compensation_mv_per_k_per_cell.value",
-            f.compensation_mv_per_k_per_cell.value,
-            -10.0,
-            0.0,
-            "mV/K",
-        )?;
-        check_range(
-            origin,
-            "float.compensation_max_celsius.value",
-            f.compensation_max_celsius.value,
-            0.0,
-            70.0,
-            "°C",
-        )?;
-        check_range(
-            origin,
-            "float.compensation_min_celsius.value",
-            f.compensation_min_celsius.value,
-            -40.0,
-            25.0,
-            "°C",
-        )?;
-        check_range(
-            origin,
-            "float.expected_current_ma_per_ah.value",
-            f.expected_current_ma_per_ah.value,
-            0.0,
-            100.0,
-            "mA/Ah",
-        )?;
     }
-    Ok(())
 }
 
 fn build_curve(s: &ProfileFile, origin: &str) -> Result<MonotoneCurve, ProfileError> {

@@ -12,7 +12,6 @@ use super::{
     actions_present, location, needing_action, report_cautions, soc_text, FleetFormat,
     ReportContext,
 };
-use crate::correct::Action;
 use crate::fleet::analysis::FleetReport;
 use crate::safety::caution_text;
 use std::fmt::Write as _;
@@ -68,16 +67,8 @@ impl FleetFormat for Markdown {
         }
         m.push_str("\n| site | units | by action |\n|---|---:|---|\n");
         for (site, counts) in &s.by_site {
-            let total: usize = counts.values().sum();
-            let parts: Vec<String> = Action::ALL
-                .into_iter()
-                .filter_map(|a| {
-                    counts
-                        .get(a.as_str())
-                        .map(|n| format!("{n} {}", a.as_str()))
-                })
-                .collect();
-            let _ = writeln!(m, "| {} | {total} | {} |", escape(site), parts.join(", "));
+            let (total, parts) = super::site_actions(counts);
+            let _ = writeln!(m, "| {} | {total} | {} |", escape(site), parts);
         }
 
         m.push_str("\n## Units needing action\n\n");
@@ -184,6 +175,7 @@ impl FleetFormat for Markdown {
 mod tests {
     use super::*;
     use crate::report::fixture;
+    use crate::correct::Action;
 
     fn out() -> String {
         let (report, store) = fixture::report();

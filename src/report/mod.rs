@@ -148,6 +148,19 @@ pub(crate) fn actions_present(report: &FleetReport) -> Vec<(Action, usize)> {
         .collect()
 }
 
+/// One site's counts as `N action, …` (most urgent first), with the site's total.
+pub(crate) fn site_actions(counts: &std::collections::BTreeMap<String, usize>) -> (usize, String) {
+    let parts: Vec<String> = Action::ALL
+        .into_iter()
+        .filter_map(|a| {
+            counts
+                .get(a.as_str())
+                .map(|n| format!("{n} {}", a.as_str()))
+        })
+        .collect();
+    (counts.values().sum(), parts.join(", "))
+}
+
 /// Units whose action is not `serviceable`, in rank order.
 pub(crate) fn needing_action(report: &FleetReport) -> impl Iterator<Item = &UnitReport> {
     report

@@ -207,20 +207,8 @@ impl FleetFormat for Table {
         o.blank();
         o.heading("SUMMARY BY SITE");
         for (site, counts) in &s.by_site {
-            let total: usize = counts.values().sum();
-            let parts: Vec<String> = Action::ALL
-                .into_iter()
-                .filter_map(|a| {
-                    counts
-                        .get(a.as_str())
-                        .map(|n| format!("{n} {}", a.as_str()))
-                })
-                .collect();
-            o.line(&format!(
-                "  {} {total:>5} units: {}",
-                pad(site, 24),
-                parts.join(", ")
-            ));
+            let (total, parts) = super::site_actions(counts);
+            o.line(&format!("  {} {total:>5} units: {}", pad(site, 24), parts));
         }
         o.blank();
 

@@ -194,10 +194,7 @@ impl Rules {
     pub fn from_toml(text: &str, origin: &str) -> Result<Rules, RulesError> {
         let file: RulesFile = toml::from_str(text).map_err(|e| RulesError::Syntax {
             origin: origin.to_string(),
-            line: e
-                .span()
-                .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
-                .unwrap_or(1),
+            line: crate::profile::toml_error_line(text, &e),
             message: e.message().to_string(),
         })?;
         let mut rules = Rules::default();
