@@ -108,12 +108,9 @@ pub struct CheckArgs {
     /// What came before the rest
     #[arg(long, value_enum, default_value = "unknown")]
     pub after: AfterArg,
-    /// Meter DC-volts accuracy as PERCENT%+COUNTS
-    #[arg(long, default_value = "0.5%+2")]
-    pub meter: String,
-    /// Meter display resolution in volts
-    #[arg(long, default_value = "0.01", value_name = "V")]
-    pub resolution: String,
+    /// The voltmeter.
+    #[command(flatten)]
+    pub instrument: MeterArgs,
     /// Standard uncertainty of the temperature, in K [default: 2 K, or 10 K with no --temp]
     #[arg(long, value_name = "K")]
     pub temp_uncertainty: Option<String>,
@@ -137,6 +134,38 @@ pub struct CheckArgs {
     pub format: OneFormat,
 }
 
+/// The voltmeter's accuracy and resolution, shared by every command that reads volts.
+#[derive(Clone, Debug, Args)]
+pub struct MeterArgs {
+    /// Meter DC-volts accuracy as PERCENT%+COUNTS
+    #[arg(long, default_value = "0.5%+2")]
+    pub meter: String,
+    /// Meter display resolution in volts
+    #[arg(long, default_value = "0.01", value_name = "V")]
+    pub resolution: String,
+}
+
+impl MeterArgs {
+    /// A setup with this meter and every other setting at its default.
+    pub fn setup(&self) -> Result<Setup, CliError> {
+        let meter: MeterAccuracy = opt_usage("--meter", units::parse_meter(&self.meter))?;
+        let resolution = opt_usage(
+            "--resolution",
+            units::parse_decimal(&self.resolution, "a resolution in volts, like 0.01"),
+        )?;
+        if !(resolution > 0.0 && resolution <= 1.0) {
+            return Err(CliError::usage(format!(
+                "--resolution: {resolution} V is not a meter resolution (expected 0.0001–1, like 0.01)"
+            )));
+        }
+        Ok(Setup {
+            meter,
+            resolution: Volts(resolution),
+            ..Setup::default()
+        })
+    }
+}
+
 /// Read `--rules FILE` or the defaults.
 pub fn load_rules(path: &Option<PathBuf>) -> Result<Rules, CliError> {
     match path {
@@ -155,42 +184,24 @@ fn opt_usage<T>(flag: &str, r: Result<T, units::UnitError>) -> Result<T, CliErro
 
 /// The measurement setup from the arguments.
 pub fn setup_from(args: &CheckArgs) -> Result<Setup, CliError> {
-    let meter: MeterAccuracy = opt_usage("--meter", units::parse_meter(&args.meter))?;
-    let resolution = opt_usage(
-        "--resolution",
-        units::parse_decimal(&args.resolution, "a resolution in volts, like 0.01"),
-    )?;
-    if !(resolution > 0.0 && resolution <= 1.0) {
-        return Err(CliError::usage(format!(
-            "--resolution: {resolution} V is not a meter resolution (expected 0.0001–1, like 0.01)"
-        )));
-    }
-    let temperature_uncertainty = match &args.temp_uncertainty {
-        None => None,
-        Some(s) => {
-            let k = opt_usage(
-                "--temp-uncertainty",
-                units::parse_decimal(s.trim_end_matches(['K', 'k']), "kelvin, like 2"),
-            )?;
-            if !(0.0..=30.0).contains(&k) {
-                return Err(CliError::usage(format!(
-                    "--temp-uncertainty: {k} K is outside 0–30 K"
-                )));
-            }
-            Some(Kelvins(k))
+    let mut setup = args.instrument.setup()?;
+    if let Some(s) = &args.temp_uncertainty {
+        let k = opt_usage(
+            "--temp-uncertainty",
+            units::parse_decimal(s.trim_end_matches(['K', 'k']), "kelvin, like 2"),
+        )?;
+        if !(0.0..=30.0).contains(&k) {
+            return Err(CliError::usage(format!(
+                "--temp-uncertainty: {k} K is outside 0–30 K"
+            )));
         }
-    };
-    let min_temperature = match &args.min_temp {
-        None => None,
-        Some(s) => Some(opt_usage("--min-temp", units::parse_temperature(s))?),
-    };
-    Ok(Setup {
-        meter,
-        resolution: Volts(resolution),
-        temperature_uncertainty,
-        hydrometer_rule: args.hydrometer_rule.into(),
-        min_temperature,
-    })
+        setup.temperature_uncertainty = Some(Kelvins(k));
+    }
+    if let Some(s) = &args.min_temp {
+        setup.min_temperature = Some(opt_usage("--min-temp", units::parse_temperature(s))?);
+    }
+    setup.hydrometer_rule = args.hydrometer_rule.into();
+    Ok(setup)
 }
 
 fn parse_volts(s: &str) -> Result<Volts, CliError> {

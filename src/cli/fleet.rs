@@ -2,9 +2,8 @@
 
 use super::check::load_rules;
 use super::{output, CliError, CmdResult, EXIT_REJECTED_ROWS};
-use crate::correct::Setup;
 use crate::fleet::analysis::{finish, FleetReport, FleetSettings, FleetState};
-use crate::fleet::ingest::{ingest, IngestOptions};
+use crate::fleet::ingest::IngestOptions;
 use crate::profile::store::ProfileStore;
 use crate::report::{self, FormatKind, ReportContext};
 use crate::units;
@@ -65,12 +64,9 @@ pub struct FleetArgs {
     /// Rules overrides (TOML, see `restvolt rules`)
     #[arg(long, value_name = "FILE")]
     pub rules: Option<PathBuf>,
-    /// Meter DC-volts accuracy as PERCENT%+COUNTS
-    #[arg(long, default_value = "0.5%+2")]
-    pub meter: String,
-    /// Meter display resolution in volts
-    #[arg(long, default_value = "0.01")]
-    pub resolution: String,
+    /// The voltmeter.
+    #[command(flatten)]
+    pub instrument: super::check::MeterArgs,
     /// Report format
     #[arg(long, value_enum, default_value = "table")]
     pub format: FleetFormatArg,
@@ -103,39 +99,16 @@ pub fn analyse_files(
     let mut state = FleetState::default();
     for path in files {
         let name = path.display().to_string();
-        let mut rows = Vec::new();
-        let mut rejects = Vec::new();
         let stats = if path.as_os_str() == "-" {
-            ingest(
-                "-",
-                std::io::stdin().lock(),
-                opts,
-                &mut |r| rows.push(r),
-                &mut |r| rejects.push(r),
-            )
+            state.ingest("-", std::io::stdin().lock(), opts, store, settings)
         } else {
             let f =
                 std::fs::File::open(path).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
-            ingest(
-                &name,
-                std::io::BufReader::new(f),
-                opts,
-                &mut |r| rows.push(r),
-                &mut |r| rejects.push(r),
-            )
+            state.ingest(&name, std::io::BufReader::new(f), opts, store, settings)
         }
         .map_err(CliError::usage)?;
-        for r in rows {
-            state.add_row(r, store, settings);
-        }
-        for r in rejects {
-            state.add_rejected(r);
-        }
-        state.rows_read += stats.rows_read;
-        state.rows_accepted += stats.rows_accepted;
         for n in stats.notices {
             eprintln!("restvolt: note: {n}");
-            state.notices.push(n);
         }
     }
     Ok(finish(&state, store, settings))
@@ -144,10 +117,6 @@ pub fn analyse_files(
 /// Run `restvolt fleet`.
 pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
     let rules = load_rules(&args.rules)?;
-    let meter =
-        units::parse_meter(&args.meter).map_err(|e| CliError::usage(format!("--meter: {e}")))?;
-    let resolution = units::parse_decimal(&args.resolution, "a resolution in volts, like 0.01")
-        .map_err(|e| CliError::usage(format!("--resolution: {e}")))?;
     let min_temperature = args
         .min_temp
         .as_deref()
@@ -158,11 +127,7 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         store.get(p).map_err(CliError::usage)?;
     }
     let settings = FleetSettings {
-        setup: Setup {
-            meter,
-            resolution: units::Volts(resolution),
-            ..Setup::default()
-        },
+        setup: args.instrument.setup()?,
         rules,
         min_temperature,
     };
@@ -234,25 +199,15 @@ pub fn demo(args: DemoArgs, store: &ProfileStore) -> CmdResult {
         ..IngestOptions::default()
     };
     let mut state = FleetState::default();
-    let mut rows = Vec::new();
-    let mut rejects = Vec::new();
-    let stats = ingest(
-        "demo-data/fleet.csv",
-        DEMO_FLEET.as_bytes(),
-        &opts,
-        &mut |r| rows.push(r),
-        &mut |r| rejects.push(r),
-    )
-    .map_err(CliError::fail)?;
-    for r in rows {
-        state.add_row(r, store, &settings);
-    }
-    for r in rejects {
-        state.add_rejected(r);
-    }
-    state.rows_read = stats.rows_read;
-    state.rows_accepted = stats.rows_accepted;
-    state.notices = stats.notices;
+    state
+        .ingest(
+            "demo-data/fleet.csv",
+            DEMO_FLEET.as_bytes(),
+            &opts,
+            store,
+            &settings,
+        )
+        .map_err(CliError::fail)?;
     let report = finish(&state, store, &settings);
     let name = "Demo fleet: Larchmere Rural Networks (invented)";
     if let Some(p) = &args.html {

@@ -50,12 +50,9 @@ pub struct SettleArgs {
     /// Battery temperature with its unit (else the file's temperatures, else 25 °C assumed)
     #[arg(long, allow_hyphen_values = true)]
     pub temp: Option<String>,
-    /// Meter DC-volts accuracy as PERCENT%+COUNTS
-    #[arg(long, default_value = "0.5%+2")]
-    pub meter: String,
-    /// Meter display resolution in volts
-    #[arg(long, default_value = "0.01")]
-    pub resolution: String,
+    /// The voltmeter.
+    #[command(flatten)]
+    pub instrument: super::check::MeterArgs,
     /// Rules overrides (TOML)
     #[arg(long, value_name = "FILE")]
     pub rules: Option<PathBuf>,
@@ -127,26 +124,7 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
             "give a CSV file or --reading ELAPSED=VOLTS (at least three)",
         ));
     }
-    let mut setup_args = super::check::CheckArgs {
-        volts: None,
-        sg: None,
-        profile: args.profile.clone(),
-        cells: args.cells,
-        temp: args.temp.clone(),
-        rest: "unknown".into(),
-        after: super::check::AfterArg::Idle,
-        meter: args.meter.clone(),
-        resolution: args.resolution.clone(),
-        temp_uncertainty: None,
-        min_temp: None,
-        hydrometer_rule: super::check::HydroArg::Step,
-        float: false,
-        ambient: None,
-        rules: None,
-        format: OneFormat::Text,
-    };
-    let setup: Setup = super::check::setup_from(&setup_args)?;
-    setup_args.temp = None;
+    let setup: Setup = args.instrument.setup()?;
     let temperature = match &args.temp {
         Some(s) => {
             Some(units::parse_temperature(s).map_err(|e| CliError::usage(format!("--temp: {e}")))?)

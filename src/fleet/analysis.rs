@@ -2,7 +2,7 @@
 //! unit (latest reading, history, peers, hydrometer, ohmic, cold and heat) and
 //! rank the fleet.
 
-use super::ingest::{FleetRow, Rejected};
+use super::ingest::{ingest, FleetRow, IngestError, IngestOptions, IngestStats, Rejected};
 use super::summary::UnitSummary;
 use crate::correct::{assess, Action, After, FlagCode, Reading, Reason, RestStatus, Setup};
 use crate::profile::store::ProfileStore;
@@ -61,6 +61,37 @@ impl FleetState {
             .entry(row.unit_id.clone())
             .or_default()
             .add(row, soc, rested, short, ageing);
+    }
+
+    /// Read one input into the state: rows are folded in as they stream by,
+    /// rejects and counts recorded; returns the input's statistics.
+    pub fn ingest<R: std::io::Read>(
+        &mut self,
+        name: &str,
+        reader: R,
+        opts: &IngestOptions,
+        store: &ProfileStore,
+        settings: &FleetSettings,
+    ) -> Result<IngestStats, IngestError> {
+        let mut rejects = Vec::new();
+        let stats = ingest(
+            name,
+            reader,
+            opts,
+            &mut |r| self.add_row(r, store, settings),
+            &mut |r| rejects.push(r),
+        )?;
+        for r in rejects {
+            self.add_rejected(r);
+        }
+        self.rows_read += stats.rows_read;
+        self.rows_accepted += stats.rows_accepted;
+        for n in &stats.notices {
+            if !self.notices.contains(n) {
+                self.notices.push(n.clone());
+            }
+        }
+        Ok(stats)
     }
 
     /// Record a rejected row.

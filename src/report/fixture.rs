@@ -2,7 +2,7 @@
 //! format tests.
 
 use crate::fleet::analysis::{finish, FleetReport, FleetSettings, FleetState};
-use crate::fleet::ingest::{ingest, IngestOptions};
+use crate::fleet::ingest::IngestOptions;
 use crate::profile::store::ProfileStore;
 
 /// Invented demo fleet (names invented): a flooded stationary string of six
@@ -39,25 +39,15 @@ pub fn report() -> (FleetReport, ProfileStore) {
     let store = ProfileStore::builtin().unwrap();
     let settings = FleetSettings::default();
     let mut state = FleetState::default();
-    let mut rows = Vec::new();
-    let mut rejected = Vec::new();
-    let stats = ingest(
-        "demo.csv",
-        CSV.as_bytes(),
-        &IngestOptions::default(),
-        &mut |r| rows.push(r),
-        &mut |r| rejected.push(r),
-    )
-    .unwrap();
-    for r in rows {
-        state.add_row(r, &store, &settings);
-    }
-    for r in rejected {
-        state.add_rejected(r);
-    }
-    state.rows_read = stats.rows_read;
-    state.rows_accepted = stats.rows_accepted;
-    state.notices = stats.notices;
+    state
+        .ingest(
+            "demo.csv",
+            CSV.as_bytes(),
+            &IngestOptions::default(),
+            &store,
+            &settings,
+        )
+        .unwrap();
     let report = finish(&state, &store, &settings);
     (report, store)
 }

@@ -174,8 +174,8 @@ impl FleetFormat for Markdown {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::report::fixture;
     use crate::correct::Action;
+    use crate::report::fixture;
 
     fn out() -> String {
         let (report, store) = fixture::report();
