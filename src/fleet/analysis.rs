@@ -137,8 +137,13 @@ pub fn ageing_factor(t: Celsius, halving_c: f64) -> f64 {
     }
 }
 
-/// State of charge of a row for the history, with whether it was rested.
-fn row_soc(p: &Profile, row: &FleetRow, settings: &FleetSettings) -> (Option<f64>, bool, bool) {
+/// State of charge of a row (with its interval) for the history, whether it
+/// was rested, and whether its rest was too short.
+fn row_soc(
+    p: &Profile,
+    row: &FleetRow,
+    settings: &FleetSettings,
+) -> (Option<(f64, [f64; 2])>, bool, bool) {
     if row.after == After::Float {
         return (None, false, false);
     }
@@ -152,7 +157,7 @@ fn row_soc(p: &Profile, row: &FleetRow, settings: &FleetSettings) -> (Option<f64
                 && !a.has(FlagCode::WrongCellCount)
                 && !a.has(FlagCode::SuspectShortedCell) =>
         {
-            (Some(a.soc_percent), rested, short)
+            (Some((a.soc_percent, a.soc_interval_percent)), rested, short)
         }
         _ => (None, false, short),
     }
@@ -596,14 +601,14 @@ fn judge_unit(
     let rested: Vec<_> = s
         .history
         .iter()
-        .filter(|h| h.rested && h.soc_milli_percent.is_some())
+        .filter(|h| h.rested && h.soc_percent().is_some())
         .collect();
     if let Some(last) = rested.last() {
-        if (last.soc_milli_percent.unwrap_or(0) as f64 / 1000.0) < recharge_below {
+        if last.soc_percent().unwrap_or(0.0) < recharge_below {
             let start = rested
                 .iter()
                 .rev()
-                .take_while(|h| (h.soc_milli_percent.unwrap_or(0) as f64 / 1000.0) < recharge_below)
+                .take_while(|h| h.soc_percent().unwrap_or(0.0) < recharge_below)
                 .last()
                 .map(|h| h.taken_at)
                 .unwrap_or(last.taken_at);
@@ -624,9 +629,9 @@ fn judge_unit(
         .history
         .iter()
         .rev()
-        .find(|h| h.after == After::Charge && h.rested && h.soc_milli_percent.is_some())
+        .find(|h| h.after == After::Charge && h.rested && h.soc_percent().is_some())
     {
-        let pc_soc = pc.soc_milli_percent.unwrap_or(0) as f64 / 1000.0;
+        let pc_soc = pc.soc_percent().unwrap_or(0.0);
         if pc_soc < rules.get(RuleId::PostChargeShortfall) {
             flags.push("post-charge-shortfall".into());
             reasons.push(reason(
@@ -697,13 +702,7 @@ fn judge_unit(
         .history
         .iter()
         .filter(|h| h.rested)
-        .filter_map(|h| {
-            let soc = h.soc_milli_percent? as f64 / 1000.0;
-            let i = assess(profile, &to_reading(&h.row), &settings.setup, rules)
-                .map(|a| a.soc_interval_percent)
-                .unwrap_or([soc, soc]);
-            Some((h.taken_at, soc, i))
-        })
+        .filter_map(|h| Some((h.taken_at, h.soc_percent()?, h.soc_interval_percent()?)))
         .collect();
     let peer_key = ocv_cell.map(|_| {
         let group = match (&row.site, &row.string) {

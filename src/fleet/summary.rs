@@ -29,6 +29,8 @@ pub struct HistoryPoint {
     pub taken_at: NaiveDateTime,
     /// State of charge from the rested reading, 0.001 % units (None if the reading had no usable rest voltage or SG).
     pub soc_milli_percent: Option<i64>,
+    /// Its 95 % interval, 0.001 % units.
+    pub soc_interval_milli_percent: Option<[i64; 2]>,
     /// What preceded it.
     pub after: After,
     /// Whether the rest was at least the profile's minimum (or the unit idle).
@@ -38,6 +40,17 @@ pub struct HistoryPoint {
 }
 
 impl HistoryPoint {
+    /// State of charge in percent, where the reading gave one.
+    pub fn soc_percent(&self) -> Option<f64> {
+        self.soc_milli_percent.map(|q| q as f64 / SOC_SCALE)
+    }
+
+    /// Its 95 % interval in percent.
+    pub fn soc_interval_percent(&self) -> Option<[f64; 2]> {
+        self.soc_interval_milli_percent
+            .map(|[lo, hi]| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
+    }
+
     /// Total order: time, then content, so that the same set of readings is
     /// kept and chosen whatever order they arrive in.
     fn order(&self, other: &HistoryPoint) -> Ordering {
@@ -105,12 +118,12 @@ pub fn minutes_since_epoch(t: NaiveDateTime) -> i64 {
 }
 
 impl UnitSummary {
-    /// Fold one reading in. `soc` is the rested state of charge where there is one;
-    /// `ageing` the heat-ageing factor at its temperature.
+    /// Fold one reading in. `soc` is the state of charge and its 95 % interval
+    /// where the reading gives one; `ageing` the heat-ageing factor at its temperature.
     pub fn add(
         &mut self,
         row: FleetRow,
-        soc: Option<f64>,
+        soc: Option<(f64, [f64; 2])>,
         rested: bool,
         short_rest: bool,
         ageing: Option<f64>,
@@ -119,7 +132,9 @@ impl UnitSummary {
         if short_rest {
             self.short_rest += 1;
         }
-        let soc_q = soc.map(|s| (s * SOC_SCALE).round() as i64);
+        let quantise = |x: f64| (x * SOC_SCALE).round() as i64;
+        let soc_q = soc.map(|(s, _)| quantise(s));
+        let interval_q = soc.map(|(_, [lo, hi])| [quantise(lo), quantise(hi)]);
         if let (Some(s), true) = (soc_q, rested) {
             let t = minutes_since_epoch(row.taken_at) as i128;
             let s = s as i128;
@@ -148,6 +163,7 @@ impl UnitSummary {
         let point = HistoryPoint {
             taken_at: row.taken_at,
             soc_milli_percent: soc_q,
+            soc_interval_milli_percent: interval_q,
             after: row.after,
             rested,
             row,
