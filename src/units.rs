@@ -263,6 +263,26 @@ pub fn parse_duration(raw: &str) -> Result<Option<Hours>, UnitError> {
     Ok(Some(Hours(total_hours)))
 }
 
+/// Choose the delimiter of a CSV export (`,`, `;` or tab): the one that
+/// occurs most often outside quotes in the header line, comma on a tie.
+/// Spreadsheets in decimal-comma locales export with `;`.
+pub fn detect_delimiter(header: &[u8]) -> u8 {
+    let mut counts = [0usize; 3];
+    let mut quoted = false;
+    for &b in header {
+        match b {
+            b'"' => quoted = !quoted,
+            b'\n' | b'\r' if !quoted => break,
+            b',' if !quoted => counts[0] += 1,
+            b';' if !quoted => counts[1] += 1,
+            b'\t' if !quoted => counts[2] += 1,
+            _ => {}
+        }
+    }
+    let best = (0..3).max_by_key(|&i| (counts[i], 3 - i)).unwrap_or(0);
+    [b',', b';', b'\t'][best]
+}
+
 /// A handheld meter's stated DC-volts accuracy: ±(percent of reading + counts of the last digit).
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct MeterAccuracy {

@@ -66,13 +66,7 @@ pub fn read_points<R: Read>(
         .lines()
         .find(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
         .unwrap_or("");
-    let delimiter = if header_line.contains(';') {
-        b';'
-    } else if header_line.contains('\t') {
-        b'\t'
-    } else {
-        b','
-    };
+    let delimiter = crate::units::detect_delimiter(header_line.as_bytes());
     let mut csv = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .comment(Some(b'#'))

@@ -489,24 +489,6 @@ impl Interner {
     }
 }
 
-/// Choose the delimiter that occurs most often outside quotes in the header line.
-fn detect_delimiter(header: &[u8]) -> u8 {
-    let mut counts = [0usize; 3];
-    let mut quoted = false;
-    for &b in header {
-        match b {
-            b'"' => quoted = !quoted,
-            b'\n' | b'\r' if !quoted => break,
-            b',' if !quoted => counts[0] += 1,
-            b';' if !quoted => counts[1] += 1,
-            b'\t' if !quoted => counts[2] += 1,
-            _ => {}
-        }
-    }
-    let best = (0..3).max_by_key(|&i| (counts[i], 3 - i)).unwrap_or(0);
-    [b',', b';', b'\t'][best]
-}
-
 /// Validate a record as UTF-8 (one pass over its bytes); on failure, say
 /// which field and which byte, with a guess at the encoding.
 fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
@@ -1129,7 +1111,7 @@ pub fn ingest<R: Read>(
     };
     let delimiter = opts
         .delimiter
-        .unwrap_or_else(|| detect_delimiter(&prefix[start..]));
+        .unwrap_or_else(|| crate::units::detect_delimiter(&prefix[start..]));
     // The BOM is skipped before the guard so that its offsets are the CSV reader's.
     let mut head = io::Cursor::new(prefix);
     head.set_position(start as u64);

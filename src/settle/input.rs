@@ -94,19 +94,14 @@ fn split_line(line: &str, delimiter: u8) -> Result<csv::StringRecord, csv::Error
     Ok(record)
 }
 
+/// The delimiter of the first line that is neither blank nor a comment.
 fn sniff_delimiter(text: &str) -> u8 {
     let header = text
         .lines()
         .map(str::trim)
         .find(|l| !l.is_empty() && !l.starts_with('#'))
         .unwrap_or("");
-    if header.contains(';') {
-        b';'
-    } else if header.contains('\t') {
-        b'\t'
-    } else {
-        b','
-    }
+    crate::units::detect_delimiter(header.as_bytes())
 }
 
 /// Read a rest series CSV (see the module documentation for the columns).
