@@ -416,7 +416,9 @@ pub fn assess(
             let overlap = v.interval[0] <= s.soc_interval_percent[1]
                 && s.soc_interval_percent[0] <= v.interval[1];
             if overlap {
-                combine(v.soc, v.interval, s.soc_percent, s.soc_interval_percent)
+                let (soc, interval) =
+                    combine(v.soc, v.interval, s.soc_percent, s.soc_interval_percent);
+                (soc, interval, "volts+sg")
             } else {
                 flags.push(Flag {
                     code: FlagCode::SgVoltsDisagree,
@@ -471,11 +473,7 @@ pub fn assess(
         cells: n,
         soc_percent: soc,
         soc_interval_percent: interval,
-        soc_basis: if volts_part.is_some() && basis != "sg" && sg_part.is_some() {
-            "volts+sg"
-        } else {
-            basis
-        },
+        soc_basis: basis,
         ocv_25c_volts: volts_part.as_ref().map(|v| v.ocv25_per_cell * n as f64),
         ocv_per_cell_25c_volts: volts_part.as_ref().map(|v| v.ocv25_per_cell),
         temperature_correction_mv: volts_part.as_ref().map(|v| v.correction_mv),
@@ -492,7 +490,7 @@ pub fn assess(
 }
 
 /// Inverse-variance mean of two estimates, taking each interval's half-width as 2u.
-fn combine(a: f64, ai: [f64; 2], b: f64, bi: [f64; 2]) -> (f64, [f64; 2], &'static str) {
+fn combine(a: f64, ai: [f64; 2], b: f64, bi: [f64; 2]) -> (f64, [f64; 2]) {
     let ua = ((ai[1] - ai[0]) / 4.0).max(1e-6);
     let ub = ((bi[1] - bi[0]) / 4.0).max(1e-6);
     let (wa, wb) = (1.0 / ua.powi(2), 1.0 / ub.powi(2));
@@ -504,7 +502,6 @@ fn combine(a: f64, ai: [f64; 2], b: f64, bi: [f64; 2]) -> (f64, [f64; 2], &'stat
             (m - 2.0 * u).clamp(0.0, 100.0),
             (m + 2.0 * u).clamp(0.0, 100.0),
         ],
-        "volts+sg",
     )
 }
 
@@ -626,16 +623,12 @@ fn volts_path(
         flags.push(Flag {
             code: FlagCode::BeyondCurve,
             detail: format!(
-                "{:.0} mV per cell {} the curve's {} end: state of charge clamped",
+                "{:.0} mV per cell {} end: state of charge clamped",
                 by.0 * 1000.0,
                 match end {
-                    crate::profile::curve::CurveEnd::AboveFull => "above",
-                    crate::profile::curve::CurveEnd::BelowEmpty => "below",
+                    crate::profile::curve::CurveEnd::AboveFull => "above the curve's full",
+                    crate::profile::curve::CurveEnd::BelowEmpty => "below the curve's empty",
                 },
-                match end {
-                    crate::profile::curve::CurveEnd::AboveFull => "full",
-                    crate::profile::curve::CurveEnd::BelowEmpty => "empty",
-                }
             ),
         });
     }
