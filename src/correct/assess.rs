@@ -126,6 +126,32 @@ pub struct Flag {
     pub detail: String,
 }
 
+/// Flags as an assessment raises them. When only the numbers are wanted
+/// (every reading of a fleet) the evidence text is not written at all.
+struct Flags {
+    list: Vec<Flag>,
+    words: bool,
+}
+
+impl Flags {
+    fn add(&mut self, code: FlagCode, detail: impl FnOnce() -> String) {
+        let detail = if self.words { detail() } else { String::new() };
+        self.list.push(Flag { code, detail });
+    }
+
+    fn has(&self, code: FlagCode) -> bool {
+        self.list.iter().any(|f| f.code == code)
+    }
+
+    fn words<F: FnOnce() -> String>(&self, text: F) -> String {
+        if self.words {
+            text()
+        } else {
+            String::new()
+        }
+    }
+}
+
 /// What to do with the unit. Declared most urgent first: the derived order is the precedence.
 #[derive(
     Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, serde::Deserialize,
@@ -307,13 +333,13 @@ pub enum CorrectError {
 /// Common cell counts tried when the stated count does not fit.
 const CANDIDATE_CELLS: [u32; 8] = [1, 2, 3, 4, 6, 12, 18, 24];
 
-/// Assess one reading against a profile.
-pub fn assess(
+fn core(
     profile: &Profile,
     reading: &Reading,
     setup: &Setup,
     rules: &Rules,
-) -> Result<Assessment, CorrectError> {
+    words: bool,
+) -> Result<Core, CorrectError> {
     if reading.volts.is_none() && reading.sg.is_empty() {
         return Err(CorrectError::NoReading);
     }
@@ -324,8 +350,10 @@ pub fn assess(
     if n == 0 {
         return Err(CorrectError::NoCells);
     }
-    let mut flags = Vec::new();
-    let mut reasons = Vec::new();
+    let mut flags = Flags {
+        list: Vec::new(),
+        words,
+    };
 
     let (t, u_t) = match reading.temperature {
         Some(t) if !t.is_finite() => return Err(CorrectError::NotFinite("temperature")),
@@ -337,12 +365,11 @@ pub fn assess(
                 .unwrap_or(rules.get(RuleId::TemperatureUncertainty)),
         ),
         None => {
-            flags.push(Flag {
-                code: FlagCode::NoTemperature,
-                detail: format!(
+            flags.add(FlagCode::NoTemperature, || {
+                format!(
                     "no temperature given: 25 °C assumed, ±{} K",
                     rules.get(RuleId::TemperatureMissingUncertainty)
-                ),
+                )
             });
             (
                 Celsius(25.0),
@@ -353,31 +380,26 @@ pub fn assess(
     // The electrolyte model is the authority on the usable temperature range.
     let water = electrolyte::water_density(t)?;
     if water.extrapolated {
-        flags.push(Flag {
-            code: FlagCode::Extrapolated,
-            detail: format!(
+        flags.add(FlagCode::Extrapolated, || format!(
                 "{:.1} °C is outside the density model's published range (−11 to 75 °C): extrapolated",
                 t.0
-            ),
-        });
+            ));
     }
 
     let rest = assess_rest(profile, reading.rest, reading.after);
     match rest.status {
-        RestStatus::Short => flags.push(Flag {
-            code: FlagCode::ShortRest,
-            detail: format!(
+        RestStatus::Short => flags.add(FlagCode::ShortRest, || {
+            format!(
                 "rested {:.1} h, the profile asks at least {:.0} h (preferably {:.0} h)",
                 rest.rest_hours.unwrap_or(0.0),
                 rest.minimum_hours,
                 rest.preferred_hours
-            ),
+            )
         }),
-        RestStatus::Unknown if reading.after != After::Float => flags.push(Flag {
-            code: FlagCode::UnknownRest,
-            detail: "rest time not given: the interval allows for surface charge or recovery"
-                .into(),
-        }),
+        RestStatus::Unknown if reading.after != After::Float => flags
+            .add(FlagCode::UnknownRest, || {
+                "rest time not given: the interval allows for surface charge or recovery".into()
+            }),
         _ => {}
     }
 
@@ -402,12 +424,13 @@ pub fn assess(
         )?)
     };
 
-    let untrusted_voltage = flags.iter().any(|f| {
-        matches!(
-            f.code,
-            FlagCode::CheckConnection | FlagCode::WrongCellCount | FlagCode::SuspectShortedCell
-        )
-    });
+    let untrusted_voltage = [
+        FlagCode::CheckConnection,
+        FlagCode::WrongCellCount,
+        FlagCode::SuspectShortedCell,
+    ]
+    .into_iter()
+    .any(|c| flags.has(c));
     let (soc, interval, basis) = match (&volts_part, &sg_part) {
         (Some(v), None) => (v.soc, v.interval, "volts"),
         (None, Some(s)) => (s.soc_percent, s.soc_interval_percent, "sg"),
@@ -420,21 +443,17 @@ pub fn assess(
                     combine(v.soc, v.interval, s.soc_percent, s.soc_interval_percent);
                 (soc, interval, "volts+sg")
             } else {
-                flags.push(Flag {
-                    code: FlagCode::SgVoltsDisagree,
-                    detail: format!(
+                flags.add(FlagCode::SgVoltsDisagree, || format!(
                         "voltage says {:.0} % [{:.0}–{:.0}], hydrometer says {:.0} % [{:.0}–{:.0}]: stratification or surface charge",
                         v.soc, v.interval[0], v.interval[1], s.soc_percent,
                         s.soc_interval_percent[0], s.soc_interval_percent[1]
-                    ),
-                });
+                    ));
                 (s.soc_percent, s.soc_interval_percent, "sg")
             }
         }
         (None, None) => return Err(CorrectError::NoReading),
     };
 
-    let freezing = profile.freezing_point_at(SocPercent(soc)).ok();
     let coldest = match setup.min_temperature {
         Some(m) if m.0 < t.0 => m,
         _ => t,
@@ -442,17 +461,106 @@ pub fn assess(
     if let Ok(fp_low) = profile.freezing_point_at(SocPercent(interval[0])) {
         let margin = rules.get(RuleId::FreezeMargin);
         if coldest.0 <= fp_low.0 + margin {
-            flags.push(Flag {
-                code: FlagCode::FreezeRisk,
-                detail: format!(
+            flags.add(FlagCode::FreezeRisk, || format!(
                     "{:.0} °C expected; the electrolyte freezes near {:.0} °C at {:.0} % (margin {margin} °C)",
                     coldest.0, fp_low.0, interval[0]
-                ),
-            });
+                ));
         }
     }
 
-    decide(profile, soc, interval, &rest, &flags, rules, &mut reasons);
+    Ok(Core {
+        n,
+        t,
+        rest,
+        volts_part,
+        sg_part,
+        soc,
+        interval,
+        basis,
+        flags,
+    })
+}
+
+/// The numbers of one reading's assessment, and its flags.
+struct Core {
+    n: u32,
+    t: Celsius,
+    rest: RestAssessment,
+    volts_part: Option<VoltsPart>,
+    sg_part: Option<SgSummary>,
+    soc: f64,
+    interval: [f64; 2],
+    basis: &'static str,
+    flags: Flags,
+}
+
+/// State of charge, its interval and the flags of one reading, without the
+/// words: what a fleet analysis needs from every reading it folds in. The
+/// numbers are those [`assess`] gives for the same reading.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Estimate {
+    /// State of charge.
+    pub soc_percent: f64,
+    /// Its 95 % interval.
+    pub soc_interval_percent: [f64; 2],
+    /// What it was read from: "volts", "sg" or "volts+sg".
+    pub soc_basis: &'static str,
+    /// Flags raised.
+    pub flags: Vec<FlagCode>,
+}
+
+impl Estimate {
+    /// Whether a flag was raised.
+    pub fn has(&self, code: FlagCode) -> bool {
+        self.flags.contains(&code)
+    }
+}
+
+/// [`assess`]'s numbers only; see [`Estimate`].
+pub fn estimate(
+    profile: &Profile,
+    reading: &Reading,
+    setup: &Setup,
+    rules: &Rules,
+) -> Result<Estimate, CorrectError> {
+    let c = core(profile, reading, setup, rules, false)?;
+    Ok(Estimate {
+        soc_percent: c.soc,
+        soc_interval_percent: c.interval,
+        soc_basis: c.basis,
+        flags: c.flags.list.into_iter().map(|f| f.code).collect(),
+    })
+}
+
+/// Assess one reading against a profile.
+pub fn assess(
+    profile: &Profile,
+    reading: &Reading,
+    setup: &Setup,
+    rules: &Rules,
+) -> Result<Assessment, CorrectError> {
+    let Core {
+        n,
+        t,
+        rest,
+        volts_part,
+        sg_part,
+        soc,
+        interval,
+        basis,
+        flags,
+    } = core(profile, reading, setup, rules, true)?;
+    let mut reasons = Vec::new();
+    let freezing = profile.freezing_point_at(SocPercent(soc)).ok();
+    decide(
+        profile,
+        soc,
+        interval,
+        &rest,
+        &flags.list,
+        rules,
+        &mut reasons,
+    );
     reasons.sort_by_key(|r| r.action);
     let action = reasons
         .first()
@@ -463,7 +571,7 @@ pub fn assess(
     if !reading.sg.is_empty() {
         work.push(WorkKind::Hydrometer);
     }
-    if flags.iter().any(|f| f.code == FlagCode::FreezeRisk) {
+    if flags.has(FlagCode::FreezeRisk) {
         work.push(WorkKind::Frozen);
     }
     let cautions = cautions_for_work(&work);
@@ -479,7 +587,7 @@ pub fn assess(
         temperature_correction_mv: volts_part.as_ref().map(|v| v.correction_mv),
         temperature_celsius: t.0,
         rest,
-        flags,
+        flags: flags.list,
         action,
         reasons,
         freezing_point_celsius: freezing.map(|c| c.0),
@@ -536,7 +644,7 @@ fn volts_path(
     rest: &RestAssessment,
     setup: &Setup,
     rules: &Rules,
-    flags: &mut Vec<Flag>,
+    flags: &mut Flags,
 ) -> Result<VoltsPart, CorrectError> {
     if !v.is_finite() {
         return Err(CorrectError::NotFinite("voltage"));
@@ -551,37 +659,41 @@ fn volts_path(
         Contribution {
             input: "meter accuracy",
             standard_uncertainty_mv_per_cell: rectangular(meter_half) * 1000.0,
-            basis: format!("{} rectangular, /{} cells", setup.meter, n),
+            basis: flags.words(|| format!("{} rectangular, /{} cells", setup.meter, n)),
         },
         Contribution {
             input: "display resolution",
             standard_uncertainty_mv_per_cell: rectangular(setup.resolution.0 / 2.0) / nf * 1000.0,
-            basis: format!("±{} V / 2 rectangular", setup.resolution.0),
+            basis: flags.words(|| format!("±{} V / 2 rectangular", setup.resolution.0)),
         },
         Contribution {
             input: "temperature",
             standard_uncertainty_mv_per_cell: coef.abs() * u_t,
-            basis: format!("{u_t} K × {coef:.3} mV/K"),
+            basis: flags.words(|| format!("{u_t} K × {coef:.3} mV/K")),
         },
         Contribution {
             input: "temperature coefficient",
             standard_uncertainty_mv_per_cell: rules.get(RuleId::CoefficientUncertainty)
                 * (t.0 - 25.0).abs(),
-            basis: format!(
-                "{} mV/K × |{:.1} − 25| K",
-                rules.get(RuleId::CoefficientUncertainty),
-                t.0
-            ),
+            basis: flags.words(|| {
+                format!(
+                    "{} mV/K × |{:.1} − 25| K",
+                    rules.get(RuleId::CoefficientUncertainty),
+                    t.0
+                )
+            }),
         },
         Contribution {
             input: "curve tolerance",
             standard_uncertainty_mv_per_cell: rectangular(
                 profile.spec.tolerance.curve_mv_per_cell.value,
             ),
-            basis: format!(
-                "±{} mV per cell rectangular",
-                profile.spec.tolerance.curve_mv_per_cell.value
-            ),
+            basis: flags.words(|| {
+                format!(
+                    "±{} mV per cell rectangular",
+                    profile.spec.tolerance.curve_mv_per_cell.value
+                )
+            }),
         },
     ];
     // Unknown direction: the allowance is symmetric, so it enters the budget;
@@ -595,10 +707,12 @@ fn volts_path(
         contributions.push(Contribution {
             input: "rest allowance",
             standard_uncertainty_mv_per_cell: rectangular(below.max(above)),
-            basis: format!(
-                "±{:.0} mV per cell rectangular (direction unknown)",
-                below.max(above)
-            ),
+            basis: flags.words(|| {
+                format!(
+                    "±{:.0} mV per cell rectangular (direction unknown)",
+                    below.max(above)
+                )
+            }),
         });
     }
     let budget = Budget::new(contributions);
@@ -618,18 +732,17 @@ fn volts_path(
         .soc
         .0;
 
-    plausibility(profile, v, n, t, rest, lookup.soc.0, hi, rules, flags);
+    plausibility(profile, v, v25, n, t, rest, lookup.soc.0, hi, rules, flags);
     if let Some((end, by)) = lookup.beyond {
-        flags.push(Flag {
-            code: FlagCode::BeyondCurve,
-            detail: format!(
+        flags.add(FlagCode::BeyondCurve, || {
+            format!(
                 "{:.0} mV per cell {} end: state of charge clamped",
                 by.0 * 1000.0,
                 match end {
                     crate::profile::curve::CurveEnd::AboveFull => "above the curve's full",
                     crate::profile::curve::CurveEnd::BelowEmpty => "below the curve's empty",
                 },
-            ),
+            )
         });
     }
     Ok(VoltsPart {
@@ -643,6 +756,11 @@ fn volts_path(
 
 /// Does a per-cell voltage (for `k` cells) lie on the curve within the margins?
 fn fits(profile: &Profile, v: Volts, k: u32, t: Celsius, rules: &Rules) -> bool {
+    fits_at_25c(profile, to_25c(profile, v.0 / k as f64, t).0, rules)
+}
+
+/// [`fits`] for a per-cell OCV already referred to 25 °C.
+fn fits_at_25c(profile: &Profile, v25: f64, rules: &Rules) -> bool {
     let margin = rules.get(RuleId::CurveMargin) / 1000.0;
     let allowance = profile
         .spec
@@ -650,7 +768,6 @@ fn fits(profile: &Profile, v: Volts, k: u32, t: Celsius, rules: &Rules) -> bool 
         .beyond_full_allowance_mv_per_cell
         .value
         / 1000.0;
-    let (v25, _) = to_25c(profile, v.0 / k as f64, t);
     v25 >= profile.curve().volts_min().0 - margin
         && v25 <= profile.curve().volts_max().0 + allowance
 }
@@ -659,25 +776,23 @@ fn fits(profile: &Profile, v: Volts, k: u32, t: Celsius, rules: &Rules) -> bool 
 fn plausibility(
     profile: &Profile,
     v: Volts,
+    v25: f64,
     n: u32,
     t: Celsius,
     rest: &RestAssessment,
     soc: f64,
     soc_high: f64,
     rules: &Rules,
-    flags: &mut Vec<Flag>,
+    flags: &mut Flags,
 ) {
     let floor = rules.get(RuleId::ConnectionFloor);
     if v.0 <= 0.0 || v.0 / (n as f64) < floor {
-        flags.push(Flag {
-            code: FlagCode::CheckConnection,
-            detail: format!(
+        flags.add(FlagCode::CheckConnection, || format!(
                 "{:.2} V is not a {}-cell lead-acid rest voltage (below {floor} V per cell{}): check leads, polarity and probe contact",
                 v.0,
                 n,
                 if v.0 < 0.0 { ", negative" } else { "" }
-            ),
-        });
+            ));
         return;
     }
     let curve = profile.curve();
@@ -686,23 +801,18 @@ fn plausibility(
         .thresholds
         .beyond_full_allowance_mv_per_cell
         .value;
-    let (v25, _) = to_25c(profile, v.0 / n as f64, t);
-    if fits(profile, v, n, t, rules) {
+    if fits_at_25c(profile, v25, rules) {
         let above_mv = (v25 - curve.volts_max().0) * 1000.0;
         if above_mv > allowance {
-            flags.push(Flag {
-                code: FlagCode::BeyondFull,
-                detail: format!(
+            flags.add(FlagCode::BeyondFull, || format!(
                     "{above_mv:.0} mV per cell above the full-charge OCV (allowance {allowance} mV): surface charge or the wrong profile"
-                ),
-            });
+                ));
         } else if soc_high < rules.get(RuleId::DeepDischarge) {
-            flags.push(Flag {
-                code: FlagCode::DeepDischarge,
-                detail: format!(
+            flags.add(FlagCode::DeepDischarge, || {
+                format!(
                     "{soc:.0} % (at most {soc_high:.0} %), below {} %",
                     rules.get(RuleId::DeepDischarge)
-                ),
+                )
             });
         }
         return;
@@ -713,16 +823,13 @@ fn plausibility(
             .soc_from_ocv25(Volts(to_25c(profile, v.0 / (n - 1) as f64, t).0))
             .soc
             .0;
-        flags.push(Flag {
-            code: FlagCode::SuspectShortedCell,
-            detail: format!(
+        flags.add(FlagCode::SuspectShortedCell, || format!(
                 "{:.2} V fits {} cells at {:.0} % but no charge of {} cells: one cell is likely shorted",
                 v.0,
                 n - 1,
                 soc_fewer,
                 n
-            ),
-        });
+            ));
         return;
     }
     if let Some(k) = CANDIDATE_CELLS
@@ -731,39 +838,31 @@ fn plausibility(
         .filter(|&k| k != n && k + 1 != n)
         .find(|&k| fits(profile, v, k, t, rules))
     {
-        flags.push(Flag {
-            code: FlagCode::WrongCellCount,
-            detail: format!(
+        flags.add(FlagCode::WrongCellCount, || {
+            format!(
                 "{:.2} V fits {k} cells, not {n}: check --cells and the profile",
                 v.0
-            ),
+            )
         });
         return;
     }
     if below {
-        flags.push(Flag {
-            code: FlagCode::DeepDischarge,
-            detail: format!(
+        flags.add(FlagCode::DeepDischarge, || {
+            format!(
                 "{:.0} mV per cell below the curve's 0 % point: deeply discharged",
                 (curve.volts_min().0 - v25) * 1000.0
-            ),
+            )
         });
     } else if rest.status == RestStatus::Short || rest.status == RestStatus::Unknown {
-        flags.push(Flag {
-            code: FlagCode::BeyondFull,
-            detail: format!(
+        flags.add(FlagCode::BeyondFull, || format!(
                 "{:.0} mV per cell above full charge: surface charge from a recent charge, or still on charge",
                 (v25 - curve.volts_max().0) * 1000.0
-            ),
-        });
+            ));
     } else {
-        flags.push(Flag {
-            code: FlagCode::CheckConnection,
-            detail: format!(
+        flags.add(FlagCode::CheckConnection, || format!(
                 "{:.2} V is far above any rest voltage of {n} cells: a charger still connected, or the wrong battery",
                 v.0
-            ),
-        });
+            ));
     }
 }
 
@@ -776,7 +875,7 @@ fn sg_path(
     u_t: f64,
     setup: &Setup,
     rules: &Rules,
-    flags: &mut Vec<Flag>,
+    flags: &mut Flags,
 ) -> Result<SgSummary, CorrectError> {
     if !profile.hydrometer_usable() {
         return Err(CorrectError::NoHydrometer(profile.id().to_string()));
@@ -804,23 +903,21 @@ fn sg_path(
         .map(|(i, _)| i + 1)
         .collect();
     if !low_cells.is_empty() {
-        flags.push(Flag {
-            code: FlagCode::LowCellSg,
-            detail: format!(
+        flags.add(FlagCode::LowCellSg, || {
+            format!(
                 "cell {} more than {below:.3} below the mean {mean:.3} (corrected to 25 °C)",
                 low_cells
                     .iter()
                     .map(|c| format!("{c} ({:.3})", per_cell[c - 1]))
                     .collect::<Vec<_>>()
                     .join(", ")
-            ),
+            )
         });
     }
     let spread_limit = rules.get(RuleId::SgSpread);
     if spread > spread_limit + 1e-9 {
-        flags.push(Flag {
-            code: FlagCode::SgSpread,
-            detail: format!("cell-to-cell spread {spread:.3}, above {spread_limit:.3}"),
+        flags.add(FlagCode::SgSpread, || {
+            format!("cell-to-cell spread {spread:.3}, above {spread_limit:.3}")
         });
     }
     let (lo, hi) = profile.sg_range();

@@ -6,7 +6,8 @@ pub mod rest;
 pub mod uncertainty;
 
 pub use assess::{
-    assess, Action, Assessment, CorrectError, Flag, FlagCode, Reading, Reason, Setup,
+    assess, estimate, Action, Assessment, CorrectError, Estimate, Flag, FlagCode, Reading, Reason,
+    Setup,
 };
 pub use rest::{After, RestAssessment, RestStatus};
 

@@ -261,3 +261,48 @@ fn gum_interval_agrees_with_monte_carlo() {
         }
     }
 }
+
+#[test]
+fn the_numbers_only_estimate_is_the_assessments_numbers() {
+    // The fleet folds every reading in through `estimate`; its report explains
+    // the latest through `assess`. The two must never disagree.
+    let store = ProfileStore::builtin().unwrap();
+    let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+    let volts = Uniform::new(-1.0, 2.4);
+    let temp = Uniform::new(-30.0, 50.0);
+    let rest = Uniform::new(0.0, 48.0);
+    let sg = Uniform::new(1.10, 1.30);
+    let afters = [After::Charge, After::Discharge, After::Idle, After::Unknown];
+    for p in store.iter() {
+        for i in 0..300 {
+            let n = p.cells();
+            let r = Reading {
+                volts: (i % 5 != 0).then(|| Volts(volts.sample(&mut rng) * n as f64)),
+                sg: if p.hydrometer_usable() && i % 3 == 0 {
+                    (0..n).map(|_| SpecificGravity(sg.sample(&mut rng))).collect()
+                } else {
+                    Vec::new()
+                },
+                cells: (i % 7 == 0).then_some(n + 1),
+                temperature: (i % 11 != 0).then(|| Celsius(temp.sample(&mut rng))),
+                rest: (i % 4 != 0).then(|| Hours(rest.sample(&mut rng))),
+                after: afters[i % afters.len()],
+            };
+            let (full, quick) = (
+                assess(p, &r, &Setup::default(), &Rules::default()),
+                estimate(p, &r, &Setup::default(), &Rules::default()),
+            );
+            match (full, quick) {
+                (Ok(a), Ok(e)) => {
+                    assert_eq!(a.soc_percent.to_bits(), e.soc_percent.to_bits());
+                    assert_eq!(a.soc_interval_percent, e.soc_interval_percent);
+                    assert_eq!(a.soc_basis, e.soc_basis);
+                    let codes: Vec<FlagCode> = a.flags.iter().map(|f| f.code).collect();
+                    assert_eq!(codes, e.flags, "{} {r:?}", p.id());
+                }
+                (Err(a), Err(e)) => assert_eq!(a.to_string(), e.to_string()),
+                (a, e) => panic!("{}: {r:?}: assess {a:?}, estimate {e:?}", p.id()),
+            }
+        }
+    }
+}

@@ -4,7 +4,9 @@
 
 use super::ingest::{ingest, FleetRow, IngestError, IngestOptions, IngestStats, Rejected};
 use super::summary::UnitSummary;
-use crate::correct::{assess, Action, After, FlagCode, Reading, Reason, RestStatus, Setup};
+use crate::correct::{
+    assess, estimate, Action, After, FlagCode, Reading, Reason, RestStatus, Setup,
+};
 use crate::profile::store::ProfileStore;
 use crate::profile::Profile;
 use crate::rules::{RuleId, Rules};
@@ -151,7 +153,7 @@ fn row_soc(
         matches!(row.rest, Some(h) if h.0 < p.minimum_rest_hours()) && row.after != After::Idle;
     let rested = !short && (row.rest.is_some() || row.after == After::Idle);
     let reading = to_reading(row);
-    match assess(p, &reading, &settings.setup, &settings.rules) {
+    match estimate(p, &reading, &settings.setup, &settings.rules) {
         Ok(a)
             if !a.has(FlagCode::CheckConnection)
                 && !a.has(FlagCode::WrongCellCount)
