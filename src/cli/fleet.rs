@@ -169,8 +169,9 @@ pub fn write_report(
         fleet_name: name.to_string(),
         colour: to_terminal && std::env::var_os("NO_COLOR").is_none(),
     };
-    let text = report::render(format, report, &ctx);
-    output::emit(path, text.as_bytes(), inputs)
+    output::emit_with(path, inputs, &mut |w| {
+        report::write(format, report, &ctx, w)
+    })
 }
 
 /// Arguments of `restvolt demo`.

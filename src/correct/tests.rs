@@ -279,7 +279,9 @@ fn the_numbers_only_estimate_is_the_assessments_numbers() {
             let r = Reading {
                 volts: (i % 5 != 0).then(|| Volts(volts.sample(&mut rng) * n as f64)),
                 sg: if p.hydrometer_usable() && i % 3 == 0 {
-                    (0..n).map(|_| SpecificGravity(sg.sample(&mut rng))).collect()
+                    (0..n)
+                        .map(|_| SpecificGravity(sg.sample(&mut rng)))
+                        .collect()
                 } else {
                     Vec::new()
                 },

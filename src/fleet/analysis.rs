@@ -436,11 +436,11 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
     let mut last: Option<chrono::NaiveDateTime> = None;
     let mut profiles: Vec<String> = Vec::new();
     for s in state.units.values() {
-        if let (Some(f), Some(l)) = (s.history.first(), s.history.last()) {
-            first = Some(first.map_or(f.taken_at, |x| x.min(f.taken_at)));
+        if let (Some(f), Some((l, row))) = (s.first_at, s.latest()) {
+            first = Some(first.map_or(f, |x| x.min(f)));
             last = Some(last.map_or(l.taken_at, |x| x.max(l.taken_at)));
-            if !profiles.iter().any(|p| **p == *l.row.profile) {
-                profiles.push(l.row.profile.to_string());
+            if !profiles.iter().any(|p| **p == *row.profile) {
+                profiles.push(row.profile.to_string());
             }
         }
     }
@@ -454,7 +454,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
             units: units.len(),
             by_action,
             by_site,
-            duplicate_readings: state.units.values().map(|s| s.duplicates).sum(),
+            duplicate_readings: state.units.values().map(|s| s.duplicates()).sum(),
             short_rest_readings: state.units.values().map(|s| s.short_rest).sum(),
             period: first.zip(last).map(|(f, l)| {
                 [
@@ -495,8 +495,7 @@ fn judge_unit(
     settings: &FleetSettings,
 ) -> Option<Judged> {
     let rules = &settings.rules;
-    let latest = s.latest()?;
-    let row = &latest.row;
+    let (_, row) = s.latest()?;
     let mut flags: Vec<String> = Vec::new();
     let mut reasons: Vec<FleetReason> = Vec::new();
     let profile = match store.get(&row.profile) {
@@ -790,11 +789,10 @@ fn float_strings(
 ) -> Vec<crate::float::StringFloatAnalysis> {
     let mut groups: BTreeMap<(String, String, String), Vec<&UnitSummary>> = BTreeMap::new();
     for s in state.units.values() {
-        let Some(latest) = s.latest() else { continue };
-        if latest.row.after != After::Float || latest.row.volts.is_none() {
+        let Some((_, r)) = s.latest() else { continue };
+        if r.after != After::Float || r.volts.is_none() {
             continue;
         }
-        let r = &latest.row;
         let key = (
             r.site.as_deref().unwrap_or("").to_string(),
             r.string.as_deref().unwrap_or(&r.unit_id).to_string(),
@@ -815,8 +813,7 @@ fn float_strings(
         let readings: Vec<crate::float::FloatReading> = members
             .iter()
             .filter_map(|s| s.latest())
-            .filter_map(|h| {
-                let r = &h.row;
+            .filter_map(|(_, r)| {
                 Some(crate::float::FloatReading {
                     unit_id: r.unit_id.to_string(),
                     string: Some(name.clone()),
@@ -844,8 +841,8 @@ fn float_strings(
                     .filter_map(|h| {
                         Some((
                             h.taken_at,
-                            h.row.float_current?,
-                            crate::units::Volts(h.row.volts?.0 * n_units),
+                            h.float_current?,
+                            crate::units::Volts(h.volts?.0 * n_units),
                         ))
                     })
                     .collect()

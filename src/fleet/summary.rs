@@ -3,14 +3,15 @@
 //! A [`UnitSummary`] holds everything the diagnosis needs about one unit in
 //! a size that does not grow with its readings: exact integer sums for the
 //! state-of-charge trend and the heat-ageing mean, extremes, the earliest
-//! ohmic value (a baseline when none is given), and the latest
-//! [`HISTORY_CAP`] readings. Merging two summaries of the same unit is
+//! ohmic value (a baseline when none is given), the earliest time, the latest
+//! [`HISTORY_CAP`] readings and the full row of the latest one. Merging two summaries of the same unit is
 //! associative and commutative — integer sums, min/max, and a
 //! "latest K by a total order" set — so files or partitions can be analysed
 //! separately, in any order, and combined to the same result as one pass.
 
 use super::ingest::FleetRow;
 use crate::correct::After;
+use crate::units::{Amperes, Celsius, Volts};
 use chrono::NaiveDateTime;
 use std::cmp::Ordering;
 
@@ -22,7 +23,9 @@ const SOC_SCALE: f64 = 1000.0;
 /// Fixed-point scale for the heat-ageing factor sums.
 const AGEING_SCALE: f64 = 1_000_000.0;
 
-/// A reading as kept in a unit's history.
+/// A reading as kept in a unit's history: what the history rules, the
+/// charts and the float checks use, and no more (the full row is kept for the
+/// latest reading only).
 #[derive(Clone, Debug, PartialEq)]
 pub struct HistoryPoint {
     /// When taken.
@@ -35,8 +38,12 @@ pub struct HistoryPoint {
     pub after: After,
     /// Whether the rest was at least the profile's minimum (or the unit idle).
     pub rested: bool,
-    /// The full row, for the latest reading's assessment.
-    pub row: FleetRow,
+    /// The unit's voltage as read.
+    pub volts: Option<Volts>,
+    /// Its temperature as read.
+    pub temperature: Option<Celsius>,
+    /// Float current, for float readings.
+    pub float_current: Option<Amperes>,
 }
 
 impl HistoryPoint {
@@ -51,29 +58,53 @@ impl HistoryPoint {
             .map(|[lo, hi]| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
     }
 
-    /// Total order: time, then content, so that the same set of readings is
-    /// kept and chosen whatever order they arrive in.
+    /// Total order: time, then every other field, so that the same set of
+    /// readings is kept and chosen whatever order they arrive in (points
+    /// that compare equal are identical).
     fn order(&self, other: &HistoryPoint) -> Ordering {
+        let bits = |v: Option<f64>| v.map(f64::to_bits);
         self.taken_at
             .cmp(&other.taken_at)
-            .then_with(|| {
-                let a = self.row.volts.map(|v| v.0.to_bits());
-                let b = other.row.volts.map(|v| v.0.to_bits());
-                a.cmp(&b)
-            })
-            .then_with(|| {
-                let a: Vec<u64> = self.row.sg.iter().map(|s| s.0.to_bits()).collect();
-                let b: Vec<u64> = other.row.sg.iter().map(|s| s.0.to_bits()).collect();
-                a.cmp(&b)
-            })
+            .then_with(|| bits(self.volts.map(|v| v.0)).cmp(&bits(other.volts.map(|v| v.0))))
             .then_with(|| self.soc_milli_percent.cmp(&other.soc_milli_percent))
             .then_with(|| {
-                self.row
-                    .temperature
-                    .map(|t| t.0.to_bits())
-                    .cmp(&other.row.temperature.map(|t| t.0.to_bits()))
+                self.soc_interval_milli_percent
+                    .cmp(&other.soc_interval_milli_percent)
+            })
+            .then_with(|| self.after.cmp(&other.after))
+            .then_with(|| self.rested.cmp(&other.rested))
+            .then_with(|| {
+                bits(self.temperature.map(|t| t.0)).cmp(&bits(other.temperature.map(|t| t.0)))
+            })
+            .then_with(|| {
+                bits(self.float_current.map(|a| a.0)).cmp(&bits(other.float_current.map(|a| a.0)))
             })
     }
+}
+
+/// Total order on the content of two rows (not where they came from), to
+/// choose the latest row of a unit whatever order the rows arrive in.
+fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
+    let bits = |v: Option<f64>| v.map(f64::to_bits);
+    let sg = |r: &FleetRow| r.sg.iter().map(|s| s.0.to_bits()).collect::<Vec<_>>();
+    a.taken_at
+        .cmp(&b.taken_at)
+        .then_with(|| a.unit_id.cmp(&b.unit_id))
+        .then_with(|| a.profile.cmp(&b.profile))
+        .then_with(|| bits(a.volts.map(|v| v.0)).cmp(&bits(b.volts.map(|v| v.0))))
+        .then_with(|| sg(a).cmp(&sg(b)))
+        .then_with(|| a.site.cmp(&b.site))
+        .then_with(|| a.string.cmp(&b.string))
+        .then_with(|| a.position.cmp(&b.position))
+        .then_with(|| a.cells.cmp(&b.cells))
+        .then_with(|| bits(a.temperature.map(|t| t.0)).cmp(&bits(b.temperature.map(|t| t.0))))
+        .then_with(|| bits(a.rest.map(|h| h.0)).cmp(&bits(b.rest.map(|h| h.0))))
+        .then_with(|| a.after.cmp(&b.after))
+        .then_with(|| bits(a.ohmic.map(|o| o.0)).cmp(&bits(b.ohmic.map(|o| o.0))))
+        .then_with(|| bits(a.baseline_ohmic.map(|o| o.0)).cmp(&bits(b.baseline_ohmic.map(|o| o.0))))
+        .then_with(|| a.note.cmp(&b.note))
+        .then_with(|| bits(a.float_current.map(|c| c.0)).cmp(&bits(b.float_current.map(|c| c.0))))
+        .then_with(|| bits(a.ambient.map(|t| t.0)).cmp(&bits(b.ambient.map(|t| t.0))))
 }
 
 /// Everything kept about one unit.
@@ -101,12 +132,15 @@ pub struct UnitSummary {
     pub hottest_milli_c: Option<i64>,
     /// Earliest ohmic reading (time, mΩ bits) — a baseline when none is given.
     pub first_ohmic: Option<(NaiveDateTime, u64)>,
-    /// Duplicate readings found (same unit and time) within the kept history.
-    pub duplicates: u64,
+    /// Earliest reading time.
+    pub first_at: Option<NaiveDateTime>,
     /// Readings with too little rest.
     pub short_rest: u64,
-    /// The latest readings, oldest first, at most [`HISTORY_CAP`].
+    /// The latest readings, oldest first, at most [`HISTORY_CAP`]; readings
+    /// taken at the same time are all kept (they are duplicates).
     pub history: Vec<HistoryPoint>,
+    /// The full row of the latest reading (the greatest by time, then content).
+    pub latest_row: Option<FleetRow>,
 }
 
 /// Minutes since 2000-01-01 00:00, the trend's time axis.
@@ -160,33 +194,50 @@ impl UnitSummary {
                 _ => cand,
             });
         }
+        self.first_at = Some(self.first_at.map_or(row.taken_at, |f| f.min(row.taken_at)));
         let point = HistoryPoint {
             taken_at: row.taken_at,
             soc_milli_percent: soc_q,
             soc_interval_milli_percent: interval_q,
             after: row.after,
             rested,
-            row,
+            volts: row.volts,
+            temperature: row.temperature,
+            float_current: row.float_current,
         };
+        self.offer_latest(&point, row);
         self.insert_history(point);
     }
 
-    fn insert_history(&mut self, p: HistoryPoint) {
-        if self.history.iter().any(|h| h.taken_at == p.taken_at) {
-            self.duplicates += 1;
-            // Keep one of the two by the total order, so the choice is order-free.
-            if let Some(pos) = self.history.iter().position(|h| h.taken_at == p.taken_at) {
-                if p.order(&self.history[pos]) == Ordering::Greater {
-                    self.history[pos] = p;
-                }
-            }
-            return;
+    /// Keep `row` as the latest if it is greater than the one kept, by its
+    /// point's order and then by content. Call before inserting the point.
+    fn offer_latest(&mut self, point: &HistoryPoint, row: FleetRow) {
+        let newer = match (self.history.last(), &self.latest_row) {
+            (Some(last), Some(kept)) => match point.order(last) {
+                Ordering::Greater => true,
+                Ordering::Less => false,
+                Ordering::Equal => row_order(&row, kept) == Ordering::Greater,
+            },
+            _ => true,
+        };
+        if newer {
+            self.latest_row = Some(row);
         }
+    }
+
+    fn insert_history(&mut self, p: HistoryPoint) {
         let pos = self
             .history
-            .iter()
-            .position(|h| p.order(h) == Ordering::Less)
-            .unwrap_or(self.history.len());
+            .partition_point(|h| h.order(&p) != Ordering::Greater);
+        if self.history.len() >= HISTORY_CAP && pos == 0 {
+            return;
+        }
+        // Grow by doubling up to the cap and no further: most of a large
+        // fleet's memory is these histories.
+        if self.history.len() == self.history.capacity() {
+            let want = (self.history.capacity() * 2).clamp(2, HISTORY_CAP + 1);
+            self.history.reserve_exact(want - self.history.len());
+        }
         self.history.insert(pos, p);
         if self.history.len() > HISTORY_CAP {
             self.history.remove(0);
@@ -216,7 +267,14 @@ impl UnitSummary {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
-        self.duplicates += other.duplicates;
+        self.first_at = match (self.first_at, other.first_at) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+        if let (Some(point), Some(row)) = (other.history.last(), other.latest_row) {
+            let point = point.clone();
+            self.offer_latest(&point, row);
+        }
         for p in other.history {
             self.insert_history(p);
         }
@@ -242,8 +300,16 @@ impl UnitSummary {
         (self.temp_n > 0).then(|| self.ageing_sum as f64 / AGEING_SCALE / self.temp_n as f64)
     }
 
-    /// The latest reading.
-    pub fn latest(&self) -> Option<&HistoryPoint> {
-        self.history.last()
+    /// The latest reading: its point in the history and its full row.
+    pub fn latest(&self) -> Option<(&HistoryPoint, &FleetRow)> {
+        self.history.last().zip(self.latest_row.as_ref())
+    }
+
+    /// Readings in the kept history taken at the same time as another one.
+    pub fn duplicates(&self) -> u64 {
+        self.history
+            .windows(2)
+            .filter(|w| w[0].taken_at == w[1].taken_at)
+            .count() as u64
     }
 }

@@ -52,13 +52,24 @@ fn num(v: Option<f64>) -> String {
 }
 
 impl FleetFormat for Csv {
-    fn render(&self, report: &FleetReport, _ctx: &ReportContext) -> String {
+    fn render(&self, report: &FleetReport, ctx: &ReportContext) -> String {
+        let mut bytes = Vec::new();
+        // Writing into a Vec cannot fail for I/O reasons, and every record has
+        // the header's length, so the result carries no real error.
+        let _ = self.write_to(report, ctx, &mut bytes);
+        String::from_utf8_lossy(&bytes).into_owned()
+    }
+
+    fn write_to(
+        &self,
+        report: &FleetReport,
+        _ctx: &ReportContext,
+        out: &mut dyn std::io::Write,
+    ) -> std::io::Result<()> {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
-            .from_writer(Vec::new());
-        // Writing into a Vec cannot fail for I/O reasons, and every record has
-        // the header's length, so these results carry no real error.
-        let _ = w.write_record(COLUMNS);
+            .from_writer(out);
+        w.write_record(COLUMNS)?;
         for u in &report.units {
             let [lo, hi] = u
                 .soc_interval_percent
@@ -90,12 +101,9 @@ impl FleetFormat for Csv {
                 u.readings.to_string(),
                 u.latest_at.clone(),
             ];
-            let _ = w.write_record(&record);
+            w.write_record(&record)?;
         }
-        match w.into_inner() {
-            Ok(bytes) => String::from_utf8_lossy(&bytes).into_owned(),
-            Err(_) => String::new(),
-        }
+        w.flush()
     }
 }
 

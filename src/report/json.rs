@@ -62,6 +62,16 @@ use crate::fleet::analysis::FleetReport;
 pub struct Json;
 
 impl FleetFormat for Json {
+    fn write_to(
+        &self,
+        report: &FleetReport,
+        _ctx: &ReportContext,
+        out: &mut dyn std::io::Write,
+    ) -> std::io::Result<()> {
+        serde_json::to_writer_pretty(&mut *out, report).map_err(std::io::Error::other)?;
+        out.write_all(b"\n")
+    }
+
     fn render(&self, report: &FleetReport, _ctx: &ReportContext) -> String {
         match serde_json::to_string_pretty(report) {
             Ok(mut s) => {

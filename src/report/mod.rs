@@ -45,6 +45,18 @@ pub struct ReportContext<'a> {
 pub trait FleetFormat {
     /// The whole document.
     fn render(&self, report: &FleetReport, ctx: &ReportContext) -> String;
+
+    /// Write the whole document. Formats whose size grows with the fleet
+    /// (JSON, CSV) stream it, so that a large report is never held in memory
+    /// twice; the others write what [`FleetFormat::render`] gives.
+    fn write_to(
+        &self,
+        report: &FleetReport,
+        ctx: &ReportContext,
+        out: &mut dyn std::io::Write,
+    ) -> std::io::Result<()> {
+        out.write_all(self.render(report, ctx).as_bytes())
+    }
 }
 
 /// The formats, by name.
@@ -135,6 +147,16 @@ impl FromStr for FormatKind {
 /// Render `report` in `format`.
 pub fn render(format: FormatKind, report: &FleetReport, ctx: &ReportContext) -> String {
     format.formatter().render(report, ctx)
+}
+
+/// Write a report in a format to `out` (streamed where the format allows).
+pub fn write(
+    format: FormatKind,
+    report: &FleetReport,
+    ctx: &ReportContext,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    format.formatter().write_to(report, ctx, out)
 }
 
 /// The actions present in the report, most urgent first, with their unit counts.
@@ -292,6 +314,21 @@ mod tests {
         assert_eq!("MD".parse::<FormatKind>(), Ok(FormatKind::Markdown));
         let e = "pdf".parse::<FormatKind>().unwrap_err();
         assert!(e.to_string().contains("'pdf'"));
+    }
+
+    #[test]
+    fn streamed_output_is_the_rendered_document() {
+        let (report, store) = fixture::report();
+        let ctx = fixture::ctx(&store);
+        for k in FormatKind::ALL {
+            let mut bytes = Vec::new();
+            write(k, &report, &ctx, &mut bytes).unwrap();
+            assert_eq!(
+                String::from_utf8(bytes).unwrap(),
+                render(k, &report, &ctx),
+                "{k}"
+            );
+        }
     }
 
     #[test]
