@@ -3,7 +3,7 @@
 use super::check::load_rules;
 use super::{output, CliError, CmdResult, EXIT_REJECTED_ROWS};
 use crate::fleet::analysis::{finish, FleetReport, FleetSettings, FleetState};
-use crate::fleet::ingest::IngestOptions;
+use crate::fleet::ingest::{IngestOptions, Parallelism};
 use crate::profile::store::ProfileStore;
 use crate::report::{self, FormatKind, ReportContext};
 use crate::units;
@@ -76,7 +76,15 @@ pub struct FleetArgs {
     /// Fleet name for the report header
     #[arg(long, default_value = "Fleet")]
     pub name: String,
+    /// Threads for large inputs [default: one per core]
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=1024))]
+    pub threads: Option<u16>,
 }
+
+/// Inputs at least this large are read on several threads, with a progress
+/// bar when standard error is a terminal; smaller ones take well under a
+/// second on one.
+pub const LARGE_INPUT_BYTES: u64 = 8 << 20;
 
 fn parse_delimiter(s: &str) -> Result<u8, CliError> {
     match s {
@@ -89,22 +97,51 @@ fn parse_delimiter(s: &str) -> Result<u8, CliError> {
     }
 }
 
-/// Analyse readers into a report.
+/// Analyse readers into a report. Large files and standard input are read on
+/// `threads` threads (the result is the same: see `fleet::tests`).
 pub fn analyse_files(
     files: &[PathBuf],
     store: &ProfileStore,
     settings: &FleetSettings,
     opts: &IngestOptions,
+    threads: Option<usize>,
 ) -> Result<FleetReport, CliError> {
+    let mut how = Parallelism::default();
+    if let Some(n) = threads {
+        how.threads = n;
+    }
     let mut state = FleetState::default();
     for path in files {
         let name = path.display().to_string();
         let stats = if path.as_os_str() == "-" {
-            state.ingest("-", std::io::stdin().lock(), opts, store, settings)
+            state.ingest_parallel(
+                "-",
+                std::io::stdin(),
+                opts,
+                store,
+                settings,
+                how,
+                &mut |_| {},
+            )
         } else {
             let f =
                 std::fs::File::open(path).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
-            state.ingest(&name, std::io::BufReader::new(f), opts, store, settings)
+            let size = f.metadata().map(|m| m.len()).unwrap_or(0);
+            if size >= LARGE_INPUT_BYTES && how.threads > 1 {
+                let bar = progress_bar(&name, size);
+                let stats =
+                    state.ingest_parallel(&name, f, opts, store, settings, how, &mut |done| {
+                        if let Some(b) = &bar {
+                            b.set_position(done);
+                        }
+                    });
+                if let Some(b) = bar {
+                    b.finish_and_clear();
+                }
+                stats
+            } else {
+                state.ingest(&name, std::io::BufReader::new(f), opts, store, settings)
+            }
         }
         .map_err(CliError::usage)?;
         for n in stats.notices {
@@ -112,6 +149,24 @@ pub fn analyse_files(
         }
     }
     Ok(finish(&state, store, settings))
+}
+
+/// A progress bar on standard error, only when it is a terminal.
+fn progress_bar(name: &str, size: u64) -> Option<indicatif::ProgressBar> {
+    if !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::with_draw_target(
+        Some(size),
+        indicatif::ProgressDrawTarget::stderr(),
+    );
+    if let Ok(style) = indicatif::ProgressStyle::with_template(
+        "{msg} {wide_bar} {bytes}/{total_bytes} {bytes_per_sec} {eta}",
+    ) {
+        bar.set_style(style);
+    }
+    bar.set_message(format!("reading {name}"));
+    Some(bar)
 }
 
 /// Run `restvolt fleet`.
@@ -137,7 +192,13 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         known_profiles: Some(store.iter().map(|p| p.id().to_string()).collect()),
         now: Some(chrono::Local::now().naive_local() + chrono::Duration::days(1)),
     };
-    let report = analyse_files(&args.files, store, &settings, &opts)?;
+    let report = analyse_files(
+        &args.files,
+        store,
+        &settings,
+        &opts,
+        args.threads.map(usize::from),
+    )?;
     write_report(
         &report,
         store,

@@ -2,7 +2,10 @@
 //! unit (latest reading, history, peers, hydrometer, ohmic, cold and heat) and
 //! rank the fleet.
 
-use super::ingest::{ingest, FleetRow, IngestError, IngestOptions, IngestStats, Rejected};
+use super::ingest::{
+    ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
+    Rejected,
+};
 use super::summary::UnitSummary;
 use crate::correct::{
     assess, estimate, Action, After, FlagCode, Reading, Reason, RestStatus, Setup,
@@ -34,7 +37,8 @@ pub struct FleetSettings {
 pub struct FleetState {
     /// Per-unit summaries.
     pub units: BTreeMap<Arc<str>, UnitSummary>,
-    /// Rejected rows (capped), and the total count.
+    /// Rejected rows: the [`REJECTED_CAP`] first by (file, line, reason) are
+    /// kept, whatever order they arrived in (more may be held in between).
     pub rejected: Vec<Rejected>,
     /// Total rejected, including those beyond the cap.
     pub rejected_total: u64,
@@ -49,9 +53,25 @@ pub struct FleetState {
 /// Rejected rows kept for the report (the count is always exact).
 pub const REJECTED_CAP: usize = 1000;
 
+/// A row with what [`FleetState::prepare`] worked out for it.
+#[derive(Clone, Debug)]
+pub struct PreparedRow {
+    row: FleetRow,
+    soc: Option<(f64, [f64; 2])>,
+    rested: bool,
+    short: bool,
+    ageing: Option<f64>,
+}
+
 impl FleetState {
     /// Fold one accepted row in.
     pub fn add_row(&mut self, row: FleetRow, store: &ProfileStore, settings: &FleetSettings) {
+        self.add_prepared(FleetState::prepare(row, store, settings));
+    }
+
+    /// The part of folding a row in that does not touch the state (its
+    /// state of charge, above all), so that it can run on another thread.
+    pub fn prepare(row: FleetRow, store: &ProfileStore, settings: &FleetSettings) -> PreparedRow {
         let (soc, rested, short) = match store.get(&row.profile) {
             Ok(p) => row_soc(p, &row, settings),
             Err(_) => (None, false, false),
@@ -59,10 +79,21 @@ impl FleetState {
         let ageing = row
             .temperature
             .map(|t| ageing_factor(t, settings.rules.get(RuleId::LifeHalving)));
+        PreparedRow {
+            row,
+            soc,
+            rested,
+            short,
+            ageing,
+        }
+    }
+
+    /// Fold in a row made ready by [`FleetState::prepare`].
+    pub fn add_prepared(&mut self, p: PreparedRow) {
         self.units
-            .entry(row.unit_id.clone())
+            .entry(p.row.unit_id.clone())
             .or_default()
-            .add(row, soc, rested, short, ageing);
+            .add(p.row, p.soc, p.rested, p.short, p.ageing);
     }
 
     /// Read one input into the state: rows are folded in as they stream by,
@@ -83,6 +114,41 @@ impl FleetState {
             &mut |r| self.add_row(r, store, settings),
             &mut |r| rejects.push(r),
         )?;
+        self.record(rejects, &stats);
+        Ok(stats)
+    }
+
+    /// [`FleetState::ingest`] on several threads (see
+    /// [`crate::fleet::ingest::parallel`]): the same state results, because
+    /// the summaries do not depend on the order rows arrive in. `progress`
+    /// is told the bytes read so far.
+    #[allow(clippy::too_many_arguments)]
+    pub fn ingest_parallel<R: std::io::Read + Send>(
+        &mut self,
+        name: &str,
+        reader: R,
+        opts: &IngestOptions,
+        store: &ProfileStore,
+        settings: &FleetSettings,
+        how: Parallelism,
+        progress: &mut dyn FnMut(u64),
+    ) -> Result<IngestStats, IngestError> {
+        let mut rejects = Vec::new();
+        let stats = ingest_parallel(
+            name,
+            reader,
+            opts,
+            how,
+            &|row| FleetState::prepare(row, store, settings),
+            &mut |p| self.add_prepared(p),
+            &mut |r| rejects.push(r),
+            progress,
+        )?;
+        self.record(rejects, &stats);
+        Ok(stats)
+    }
+
+    fn record(&mut self, rejects: Vec<Rejected>, stats: &IngestStats) {
         for r in rejects {
             self.add_rejected(r);
         }
@@ -93,15 +159,27 @@ impl FleetState {
                 self.notices.push(n.clone());
             }
         }
-        Ok(stats)
     }
 
     /// Record a rejected row.
     pub fn add_rejected(&mut self, r: Rejected) {
         self.rejected_total += 1;
-        if self.rejected.len() < REJECTED_CAP {
-            self.rejected.push(r);
+        self.rejected.push(r);
+        if self.rejected.len() >= 2 * REJECTED_CAP {
+            self.trim_rejected();
         }
+    }
+
+    /// Keep the first [`REJECTED_CAP`] rejected rows by (file, line, reason).
+    fn trim_rejected(&mut self) {
+        first_rejected(&mut self.rejected);
+    }
+
+    /// The rejected rows kept for the report, in order.
+    pub fn rejected_rows(&self) -> Vec<Rejected> {
+        let mut kept = self.rejected.clone();
+        first_rejected(&mut kept);
+        kept
     }
 
     /// Combine another partition's state into this one (associative, order-free).
@@ -116,9 +194,7 @@ impl FleetState {
         }
         self.rejected_total += other.rejected_total;
         self.rejected.extend(other.rejected);
-        self.rejected
-            .sort_by(|a, b| (&a.file, a.line, &a.reason).cmp(&(&b.file, b.line, &b.reason)));
-        self.rejected.truncate(REJECTED_CAP);
+        self.trim_rejected();
         self.rows_read += other.rows_read;
         self.rows_accepted += other.rows_accepted;
         for n in other.notices {
@@ -128,6 +204,12 @@ impl FleetState {
         }
         self.notices.sort();
     }
+}
+
+/// Sort rejected rows by (file, line, reason) and keep the first [`REJECTED_CAP`].
+fn first_rejected(rows: &mut Vec<Rejected>) {
+    rows.sort_by(|a, b| (&a.file, a.line, &a.reason).cmp(&(&b.file, b.line, &b.reason)));
+    rows.truncate(REJECTED_CAP);
 }
 
 /// Heat-ageing factor at a temperature: 2^((T − 25)/N) above 25 °C, 1 below.
@@ -466,7 +548,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
         },
         units,
         float_strings: float_strings(state, store, rules),
-        rejected: state.rejected.clone(),
+        rejected: state.rejected_rows(),
         notices: state.notices.clone(),
     }
 }

@@ -62,6 +62,9 @@ use std::fmt::{self, Write as _};
 use std::io::{self, Read};
 use std::sync::Arc;
 
+pub mod parallel;
+pub use parallel::{ingest_parallel, Parallelism};
+
 /// Longest field accepted, in bytes; a longer field rejects its record.
 pub const MAX_FIELD_BYTES: usize = 64 * 1024;
 /// Longest physical line, in bytes; a longer one stops the file (no way to resynchronise).
@@ -460,7 +463,7 @@ impl<R: Read> Read for LineGuard<R> {
 }
 
 /// Shares repeated names. Emptied when full so its size stays bounded.
-#[derive(Default)]
+#[derive(Clone, Default)]
 struct Interner {
     set: HashSet<Arc<str>>,
     last: Option<Arc<str>>,
@@ -615,6 +618,7 @@ pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
     local.checked_sub_signed(chrono::Duration::minutes(offset_minutes))
 }
 
+#[derive(Clone)]
 struct RowParser<'o> {
     file: Arc<str>,
     idx: [Option<usize>; COLUMNS.len()],
@@ -1048,25 +1052,21 @@ fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteReco
     rdr.get_mut().record_line(end, inner)
 }
 
-/// Read one input. Streaming: calls `sink` for every accepted record and
-/// `reject` for every rejected one; memory does not grow with the number of
-/// records. `name` labels the input in every message.
-pub fn ingest<R: Read>(
-    name: &str,
-    reader: R,
-    opts: &IngestOptions,
-    sink: &mut dyn FnMut(FleetRow),
-    reject: &mut dyn FnMut(Rejected),
-) -> Result<IngestStats, IngestError> {
-    let mut reader = reader;
-    let io_err = |line: u64| {
-        move |source: io::Error| IngestError::Io {
-            file: name.to_string(),
-            line,
-            source,
-        }
-    };
+/// The start of an input as read before any record: the bytes up to and
+/// including the first line end (or the first 64 KiB), with the encoding
+/// checked and the delimiter known.
+struct Prefix {
+    bytes: Vec<u8>,
+    /// Bytes of a UTF-8 byte-order mark at the start (0 or 3).
+    bom: usize,
+    delimiter: u8,
+}
 
+fn read_prefix<R: Read>(
+    name: &str,
+    reader: &mut R,
+    opts: &IngestOptions,
+) -> Result<Prefix, IngestError> {
     // Read up to the first line end so the encoding and delimiter can be
     // judged before the CSV reader sees anything.
     let mut prefix = Vec::with_capacity(8192);
@@ -1075,7 +1075,13 @@ pub fn ingest<R: Read>(
         let n = match reader.read(&mut chunk) {
             Ok(n) => n,
             Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
-            Err(e) => return Err(io_err(1)(e)),
+            Err(source) => {
+                return Err(IngestError::Io {
+                    file: name.to_string(),
+                    line: 1,
+                    source,
+                })
+            }
         };
         if n == 0 {
             break;
@@ -1104,65 +1110,145 @@ pub fn ingest<R: Read>(
             "the file contains NUL bytes: it is UTF-16 without a byte-order mark, or not text",
         ));
     }
-    let start = if prefix.starts_with(&[0xEF, 0xBB, 0xBF]) {
+    let bom = if prefix.starts_with(&[0xEF, 0xBB, 0xBF]) {
         3
     } else {
         0
     };
     let delimiter = opts
         .delimiter
-        .unwrap_or_else(|| crate::units::detect_delimiter(&prefix[start..]));
-    // The BOM is skipped before the guard so that its offsets are the CSV reader's.
-    let mut head = io::Cursor::new(prefix);
-    head.set_position(start as u64);
-    let guarded = LineGuard::new(head.chain(reader));
-    let mut rdr = csv::ReaderBuilder::new()
+        .unwrap_or_else(|| crate::units::detect_delimiter(&prefix[bom..]));
+    Ok(Prefix {
+        bytes: prefix,
+        bom,
+        delimiter,
+    })
+}
+
+fn csv_reader<R: Read>(input: R, delimiter: u8) -> csv::Reader<LineGuard<R>> {
+    csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(false)
         .flexible(true)
         .buffer_capacity(64 * 1024)
-        .from_reader(guarded);
+        .from_reader(LineGuard::new(input))
+}
 
-    let file: Arc<str> = Arc::from(name);
+/// A whole-input error from the CSV reader, at the line it reached.
+fn csv_error<R>(name: &str, e: csv::Error, guard: &LineGuard<R>, line_offset: u64) -> IngestError {
+    let at = guard.current_line() + line_offset;
+    if guard.tripped {
+        return IngestError::LineTooLong {
+            file: name.to_string(),
+            line: at,
+            limit: MAX_LINE_BYTES,
+        };
+    }
+    match e.into_kind() {
+        csv::ErrorKind::Io(source) => IngestError::Io {
+            file: name.to_string(),
+            line: at,
+            source,
+        },
+        other => IngestError::Csv {
+            file: name.to_string(),
+            line: at,
+            message: format!("{:?}", other),
+        },
+    }
+}
+
+/// Read one input. Streaming: calls `sink` for every accepted record and
+/// `reject` for every rejected one; memory does not grow with the number of
+/// records. `name` labels the input in every message.
+pub fn ingest<R: Read>(
+    name: &str,
+    reader: R,
+    opts: &IngestOptions,
+    sink: &mut dyn FnMut(FleetRow),
+    reject: &mut dyn FnMut(Rejected),
+) -> Result<IngestStats, IngestError> {
+    let mut reader = reader;
+    let prefix = read_prefix(name, &mut reader, opts)?;
+    let delimiter = prefix.delimiter;
+    // The BOM is skipped before the guard so that its offsets are the CSV reader's.
+    let mut head = io::Cursor::new(prefix.bytes);
+    head.set_position(prefix.bom as u64);
+    let mut rdr = csv_reader(head.chain(reader), delimiter);
     let mut rec = csv::ByteRecord::new();
-    let csv_err = |e: csv::Error, guard: &LineGuard<_>| -> IngestError {
-        let at = guard.current_line();
-        if guard.tripped {
-            return IngestError::LineTooLong {
-                file: name.to_string(),
-                line: at,
-                limit: MAX_LINE_BYTES,
-            };
-        }
-        match e.into_kind() {
-            csv::ErrorKind::Io(source) => IngestError::Io {
-                file: name.to_string(),
-                line: at,
-                source,
-            },
-            other => IngestError::Csv {
-                file: name.to_string(),
-                line: at,
-                message: format!("{:?}", other),
-            },
-        }
-    };
-
-    // Header.
     let got = rdr
         .read_byte_record(&mut rec)
-        .map_err(|e| csv_err(e, rdr.get_ref()))?;
-    if !got
-        || rec
-            .iter()
-            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
-    {
-        return Err(IngestError::Empty {
-            file: name.to_string(),
-        });
-    }
+        .map_err(|e| csv_error(name, e, rdr.get_ref(), 0))?;
     let header_line = record_line(&mut rdr, &rec);
-    check_utf8(&rec, &[]).map_err(|what| IngestError::Encoding {
+    let (mut parser, mut stats) =
+        parse_header(name, got.then_some(&rec), header_line, delimiter, opts)?;
+    let mut counts = RecordCounts::default();
+    read_records(name, &mut rdr, &mut parser, 0, &mut counts, sink, reject)?;
+    counts.finish(name, &mut stats);
+    Ok(stats)
+}
+
+/// Records read by [`read_records`], added up over the pieces of an input.
+#[derive(Clone, Copy, Debug, Default)]
+pub(crate) struct RecordCounts {
+    read: u64,
+    accepted: u64,
+    rejected: u64,
+    blank: u64,
+}
+
+impl RecordCounts {
+    pub(crate) fn add(&mut self, other: RecordCounts) {
+        self.read += other.read;
+        self.accepted += other.accepted;
+        self.rejected += other.rejected;
+        self.blank += other.blank;
+    }
+
+    /// Put the counts, and the notices they call for, into the input's stats.
+    pub(crate) fn finish(self, name: &str, stats: &mut IngestStats) {
+        stats.rows_read += self.read;
+        stats.rows_accepted += self.accepted;
+        stats.rows_rejected += self.rejected;
+        if self.blank > 0 {
+            stats.notices.push(format!(
+                "{name}: skipped {} record{} with every field empty",
+                self.blank,
+                if self.blank == 1 { "" } else { "s" }
+            ));
+        }
+        if self.read == 0 {
+            stats.notices.push(format!(
+                "{name}: the header is there but no readings follow"
+            ));
+        }
+    }
+}
+
+/// Judge the header record (`None` when the input had no record at all).
+fn parse_header<'o>(
+    name: &str,
+    rec: Option<&csv::ByteRecord>,
+    header_line: u64,
+    delimiter: u8,
+    opts: &'o IngestOptions,
+) -> Result<(RowParser<'o>, IngestStats), IngestError> {
+    let file: Arc<str> = Arc::from(name);
+    let rec = match rec {
+        Some(rec)
+            if !rec
+                .iter()
+                .all(|f| f.iter().all(|b| b.is_ascii_whitespace())) =>
+        {
+            rec
+        }
+        _ => {
+            return Err(IngestError::Empty {
+                file: name.to_string(),
+            })
+        }
+    };
+    check_utf8(rec, &[]).map_err(|what| IngestError::Encoding {
         file: name.to_string(),
         line: header_line,
         what,
@@ -1269,7 +1355,7 @@ pub fn ingest<R: Read>(
                 .join(", ")
         ));
     }
-    let mut parser = RowParser {
+    let parser = RowParser {
         file: file.clone(),
         width: names.len(),
         names,
@@ -1287,23 +1373,37 @@ pub fn ingest<R: Read>(
         strings: Interner::default(),
     };
 
+    Ok((parser, stats))
+}
+
+/// Read the records that follow the header from `rdr`, whose line 1 is the
+/// input's line `line_offset + 1`.
+fn read_records<R: Read>(
+    name: &str,
+    rdr: &mut csv::Reader<LineGuard<R>>,
+    parser: &mut RowParser<'_>,
+    line_offset: u64,
+    counts: &mut RecordCounts,
+    sink: &mut dyn FnMut(FleetRow),
+    reject: &mut dyn FnMut(Rejected),
+) -> Result<(), IngestError> {
+    let mut rec = csv::ByteRecord::new();
     let mut problems = String::new();
-    let mut blank = 0u64;
     loop {
         match rdr.read_byte_record(&mut rec) {
             Ok(true) => {}
             Ok(false) => break,
-            Err(e) => return Err(csv_err(e, rdr.get_ref())),
+            Err(e) => return Err(csv_error(name, e, rdr.get_ref(), line_offset)),
         }
-        let line = record_line(&mut rdr, &rec);
+        let line = record_line(rdr, &rec) + line_offset;
         if rec
             .iter()
             .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
         {
-            blank += 1;
+            counts.blank += 1;
             continue;
         }
-        stats.rows_read += 1;
+        counts.read += 1;
         if let Err(what) = check_utf8(&rec, &parser.names) {
             return Err(IngestError::Encoding {
                 file: name.to_string(),
@@ -1313,11 +1413,11 @@ pub fn ingest<R: Read>(
         }
         match parser.parse(&rec, line, &mut problems) {
             Some(row) => {
-                stats.rows_accepted += 1;
+                counts.accepted += 1;
                 sink(row);
             }
             None => {
-                stats.rows_rejected += 1;
+                counts.rejected += 1;
                 reject(Rejected {
                     file: name.to_string(),
                     line,
@@ -1326,18 +1426,7 @@ pub fn ingest<R: Read>(
             }
         }
     }
-    if blank > 0 {
-        stats.notices.push(format!(
-            "{name}: skipped {blank} record{} with every field empty",
-            if blank == 1 { "" } else { "s" }
-        ));
-    }
-    if stats.rows_read == 0 {
-        stats.notices.push(format!(
-            "{name}: the header is there but no readings follow"
-        ));
-    }
-    Ok(stats)
+    Ok(())
 }
 
 #[cfg(test)]

@@ -8,3 +8,6 @@ pub mod analysis;
 pub mod generate;
 pub mod ingest;
 pub mod summary;
+
+#[cfg(test)]
+mod tests;

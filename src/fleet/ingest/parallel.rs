@@ -1,0 +1,406 @@
+//! One input read on several threads.
+//!
+//! A reader thread cuts the input into chunks of about [`CHUNK_BYTES`] at
+//! record boundaries; worker threads parse the chunks with the same row
+//! parser as the one-thread path and map each accepted row (the mapping is
+//! where a fleet analysis spends its time: the state of charge); the calling
+//! thread receives the pieces in whatever order they finish and hands them
+//! on. That order differs from the file's, so this is for consumers whose
+//! result does not depend on order, as the fleet summaries do not (see
+//! [`crate::fleet::summary`]).
+//!
+//! A chunk is cut after a line end that is not inside a quoted field. To
+//! know that, the cutter follows the CSV reader's own quoting rules (a quote
+//! opens a quoted field only at the start of a field, `""` inside is a quote);
+//! a chunk without any quote needs no scan. Each chunk is parsed from a fresh
+//! CSV reader, which starts exactly as the one-thread reader stands after
+//! that line end, and its line numbers are offset by the line ends before it.
+
+use super::{
+    csv_error, csv_reader, parse_header, read_prefix, read_records, record_line, FleetRow,
+    IngestError, IngestOptions, IngestStats, RecordCounts, Rejected, RowParser, MAX_LINE_BYTES,
+};
+use std::io::{self, Read};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
+use std::sync::{Arc, Mutex};
+
+/// Target size of a chunk.
+pub const CHUNK_BYTES: usize = 1 << 20;
+
+/// How to share the work.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Parallelism {
+    /// Worker threads (besides the reader and the caller).
+    pub threads: usize,
+    /// Target chunk size in bytes.
+    pub chunk_bytes: usize,
+}
+
+impl Default for Parallelism {
+    /// One worker per core, chunks of [`CHUNK_BYTES`].
+    fn default() -> Parallelism {
+        Parallelism {
+            threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
+            chunk_bytes: CHUNK_BYTES,
+        }
+    }
+}
+
+/// A piece of the input for a worker.
+struct Chunk {
+    bytes: Vec<u8>,
+    /// Input line number of the chunk's first line.
+    first_line: u64,
+}
+
+/// What a worker made of one chunk.
+struct Piece<T> {
+    items: Vec<T>,
+    rejects: Vec<Rejected>,
+    counts: RecordCounts,
+    bytes: u64,
+}
+
+/// An error and the line of the chunk it arose in, so that the earliest one
+/// in the input is the one reported, as on one thread.
+type Failure = (u64, IngestError);
+
+/// Quoting state of the CSV reader at a byte, as far as record ends go.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Quoting {
+    /// At the start of a field.
+    FieldStart,
+    /// In an unquoted field (a quote here is a plain character).
+    Unquoted,
+    /// In a quoted field.
+    Quoted,
+    /// Just after a quote inside a quoted field: `"` again is an escaped quote.
+    QuoteInQuoted,
+}
+
+/// The offset just after the last byte of `buf` that ends a record: the last
+/// `\n` outside quotes, else the last such `\r` (old Mac line ends). `buf`
+/// starts at the start of a record.
+fn cut_point(buf: &[u8], delimiter: u8) -> Option<usize> {
+    if !buf.contains(&b'"') {
+        return buf
+            .iter()
+            .rposition(|&b| b == b'\n')
+            .or_else(|| buf.iter().rposition(|&b| b == b'\r'))
+            .map(|i| i + 1);
+    }
+    let (mut last_lf, mut last_cr) = (None, None);
+    let mut state = Quoting::FieldStart;
+    for (i, &b) in buf.iter().enumerate() {
+        let ends_record = matches!(b, b'\n' | b'\r');
+        state = match state {
+            Quoting::Quoted => {
+                if b == b'"' {
+                    Quoting::QuoteInQuoted
+                } else {
+                    Quoting::Quoted
+                }
+            }
+            Quoting::QuoteInQuoted if b == b'"' => Quoting::Quoted,
+            Quoting::FieldStart if b == b'"' => Quoting::Quoted,
+            _ if ends_record || b == delimiter => Quoting::FieldStart,
+            _ => Quoting::Unquoted,
+        };
+        if ends_record && state == Quoting::FieldStart {
+            if b == b'\n' {
+                last_lf = Some(i + 1);
+            } else {
+                last_cr = Some(i + 1);
+            }
+        }
+    }
+    last_lf.or(last_cr)
+}
+
+fn count_line_ends(bytes: &[u8]) -> u64 {
+    bytes.iter().filter(|&&b| b == b'\n').count() as u64
+}
+
+/// Read one input on `how.threads` worker threads. Accepted rows go through
+/// `map` on the workers and then to `sink` on the calling thread, rejected
+/// rows to `reject`, both in no particular order; `progress` is told the
+/// bytes read so far. The statistics and, for inputs that cannot be read to
+/// the end, the error are those of [`super::ingest`] (rows before the error
+/// may differ: more of the input will have been read).
+#[allow(clippy::too_many_arguments)]
+pub fn ingest_parallel<R, T, M>(
+    name: &str,
+    reader: R,
+    opts: &IngestOptions,
+    how: Parallelism,
+    map: &M,
+    sink: &mut dyn FnMut(T),
+    reject: &mut dyn FnMut(Rejected),
+    progress: &mut dyn FnMut(u64),
+) -> Result<IngestStats, IngestError>
+where
+    R: Read + Send,
+    T: Send,
+    M: Fn(FleetRow) -> T + Sync,
+{
+    let mut reader = reader;
+    let prefix = read_prefix(name, &mut reader, opts)?;
+    let delimiter = prefix.delimiter;
+    let body = &prefix.bytes[prefix.bom..];
+    // The header record must end inside the prefix (it does unless a header
+    // field is quoted across a line end); otherwise read on one thread.
+    let Some(header_end) = cut_point_first(body, delimiter) else {
+        let mut head = io::Cursor::new(prefix.bytes);
+        head.set_position(prefix.bom as u64);
+        return super::ingest(
+            name,
+            head.chain(reader),
+            opts,
+            &mut |row| sink(map(row)),
+            reject,
+        );
+    };
+    let mut rdr = csv_reader(&body[..header_end], delimiter);
+    let mut rec = csv::ByteRecord::new();
+    let got = rdr
+        .read_byte_record(&mut rec)
+        .map_err(|e| csv_error(name, e, rdr.get_ref(), 0))?;
+    let header_line = record_line(&mut rdr, &rec);
+    let (parser, mut stats) =
+        parse_header(name, got.then_some(&rec), header_line, delimiter, opts)?;
+    let first_data_line = 1 + count_line_ends(&body[..header_end]);
+    let rest = body[header_end..].to_vec();
+    drop(prefix);
+
+    let threads = how.threads.max(1);
+    let chunk_bytes = how.chunk_bytes.max(64);
+    let stop = AtomicBool::new(false);
+    let (chunk_tx, chunk_rx) = sync_channel::<Chunk>(threads * 2);
+    let chunk_rx = Arc::new(Mutex::new(chunk_rx));
+    let (piece_tx, piece_rx) = sync_channel::<Result<Piece<T>, Failure>>(threads * 2);
+    let mut counts = RecordCounts::default();
+    let mut first_failure: Option<Failure> = None;
+
+    std::thread::scope(|scope| {
+        {
+            let piece_tx = piece_tx.clone();
+            let stop = &stop;
+            scope.spawn(move || {
+                if let Err(f) = cut_chunks(
+                    name,
+                    reader,
+                    rest,
+                    first_data_line,
+                    delimiter,
+                    chunk_bytes,
+                    &chunk_tx,
+                    stop,
+                ) {
+                    let _ = piece_tx.send(Err(f));
+                }
+            });
+        }
+        for _ in 0..threads {
+            let (chunk_rx, piece_tx) = (Arc::clone(&chunk_rx), piece_tx.clone());
+            let mut parser = parser.clone();
+            let stop = &stop;
+            scope.spawn(move || work(name, &chunk_rx, &piece_tx, &mut parser, map, stop));
+        }
+        drop(piece_tx);
+        let mut done = 0u64;
+        for piece in piece_rx {
+            match piece {
+                Ok(p) => {
+                    p.items.into_iter().for_each(&mut *sink);
+                    p.rejects.into_iter().for_each(&mut *reject);
+                    counts.add(p.counts);
+                    done += p.bytes;
+                    progress(done);
+                }
+                Err(f) => {
+                    stop.store(true, Ordering::Relaxed);
+                    let earlier = match &first_failure {
+                        Some((line, _)) => f.0 < *line,
+                        None => true,
+                    };
+                    if earlier {
+                        first_failure = Some(f);
+                    }
+                }
+            }
+        }
+    });
+    if let Some((_, e)) = first_failure {
+        return Err(e);
+    }
+    counts.finish(name, &mut stats);
+    Ok(stats)
+}
+
+/// The end of the first record of `body` (the header), if a line end ends it.
+fn cut_point_first(body: &[u8], delimiter: u8) -> Option<usize> {
+    let first_lf = body.iter().position(|&b| b == b'\n')?;
+    if !body[..first_lf].contains(&b'"') {
+        return Some(first_lf + 1);
+    }
+    // A quote in the header line: take the first line end outside quotes.
+    (1..=body.len())
+        .filter(|&end| body[end - 1] == b'\n')
+        .find(|&end| cut_point(&body[..end], delimiter) == Some(end))
+}
+
+/// The reader thread: cut the input into chunks at record ends.
+#[allow(clippy::too_many_arguments)]
+fn cut_chunks<R: Read>(
+    name: &str,
+    mut reader: R,
+    start: Vec<u8>,
+    first_line: u64,
+    delimiter: u8,
+    chunk_bytes: usize,
+    out: &SyncSender<Chunk>,
+    stop: &AtomicBool,
+) -> Result<(), Failure> {
+    let mut buf = start;
+    let mut line = first_line;
+    let mut eof = false;
+    while !eof && !stop.load(Ordering::Relaxed) {
+        // Fill to a chunk beyond what is already held, so that a record
+        // longer than a chunk makes the buffer grow rather than spin.
+        let target = buf.len().max(chunk_bytes - chunk_bytes / 8) + chunk_bytes / 8;
+        while buf.len() < target {
+            let old = buf.len();
+            buf.resize(target, 0);
+            match reader.read(&mut buf[old..]) {
+                Ok(0) => {
+                    buf.truncate(old);
+                    eof = true;
+                    break;
+                }
+                Ok(n) => buf.truncate(old + n),
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => buf.truncate(old),
+                Err(source) => {
+                    buf.truncate(old);
+                    let at = line + count_line_ends(&buf);
+                    return Err((
+                        at,
+                        IngestError::Io {
+                            file: name.to_string(),
+                            line: at,
+                            source,
+                        },
+                    ));
+                }
+            }
+        }
+        let cut = if eof {
+            Some(buf.len())
+        } else {
+            cut_point(&buf, delimiter)
+        };
+        match cut {
+            Some(0) => {}
+            Some(cut) => {
+                let rest = buf.split_off(cut);
+                let lines = count_line_ends(&buf);
+                let chunk = Chunk {
+                    bytes: std::mem::replace(&mut buf, rest),
+                    first_line: line,
+                };
+                line += lines;
+                if out.send(chunk).is_err() {
+                    return Ok(());
+                }
+            }
+            None if buf.len() as u64 > MAX_LINE_BYTES => {
+                return Err((
+                    line,
+                    IngestError::LineTooLong {
+                        file: name.to_string(),
+                        line,
+                        limit: MAX_LINE_BYTES,
+                    },
+                ));
+            }
+            None => {}
+        }
+    }
+    Ok(())
+}
+
+/// A worker: parse chunks until there are none.
+fn work<T, M>(
+    name: &str,
+    chunks: &Mutex<Receiver<Chunk>>,
+    out: &SyncSender<Result<Piece<T>, Failure>>,
+    parser: &mut RowParser<'_>,
+    map: &M,
+    stop: &AtomicBool,
+) where
+    M: Fn(FleetRow) -> T,
+{
+    loop {
+        let next = match chunks.lock() {
+            Ok(rx) => rx.recv(),
+            Err(_) => return,
+        };
+        let Ok(chunk) = next else { return };
+        if stop.load(Ordering::Relaxed) {
+            continue;
+        }
+        let mut piece = Piece {
+            items: Vec::new(),
+            rejects: Vec::new(),
+            counts: RecordCounts::default(),
+            bytes: chunk.bytes.len() as u64,
+        };
+        let mut rdr = csv_reader(&chunk.bytes[..], parser.delimiter);
+        let result = read_records(
+            name,
+            &mut rdr,
+            parser,
+            chunk.first_line - 1,
+            &mut piece.counts,
+            &mut |row| piece.items.push(map(row)),
+            &mut |r| piece.rejects.push(r),
+        );
+        let sent = match result {
+            Ok(()) => out.send(Ok(piece)),
+            Err(e) => out.send(Err((chunk.first_line, e))),
+        };
+        if sent.is_err() {
+            return;
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cuts_after_the_last_record_end_outside_quotes() {
+        assert_eq!(cut_point(b"a,b\nc,d\ne", b','), Some(8));
+        assert_eq!(cut_point(b"a,b", b','), None);
+        // A line end inside a quoted field is not a record end.
+        assert_eq!(cut_point(b"a,\"x\ny\"\nb,\"p\nq", b','), Some(8));
+        // An escaped quote keeps the field open; a quote inside an unquoted
+        // field is a plain character (the csv crate's rules).
+        assert_eq!(cut_point(b"a,\"x\"\"\ny\"\nz", b','), Some(10));
+        assert_eq!(cut_point(b"a,x\"y\nb", b','), Some(6));
+        assert_eq!(cut_point(b"a;\"1,2\"\nb", b';'), Some(8));
+        // Old Mac line ends, when there is no \n at all.
+        assert_eq!(cut_point(b"a,b\rc,d\re", b','), Some(8));
+    }
+
+    #[test]
+    fn the_header_ends_at_its_first_line_end_outside_quotes() {
+        assert_eq!(cut_point_first(b"unit_id,volts\n1,2\n", b','), Some(14));
+        assert_eq!(
+            cut_point_first(b"\"unit\nid\",volts\n1,2\n", b','),
+            Some(16)
+        );
+        assert_eq!(cut_point_first(b"unit_id,volts", b','), None);
+    }
+}

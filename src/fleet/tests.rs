@@ -1,0 +1,231 @@
+//! The fleet analysis gives one answer however its input is divided: on
+//! several threads, or in partitions analysed apart and merged in any order.
+//! The reference is always the plain one-pass, one-thread analysis of the
+//! same readings.
+
+use super::analysis::{finish, FleetSettings, FleetState};
+use super::generate::{generate, GenerateOptions};
+use super::ingest::{IngestOptions, IngestStats, Parallelism};
+use crate::profile::store::ProfileStore;
+use rand::seq::SliceRandom;
+use rand::{Rng, SeedableRng};
+
+fn generated(units: u32, seed: u64) -> Vec<u8> {
+    let mut out = Vec::new();
+    generate(
+        &GenerateOptions {
+            units,
+            days: 120,
+            seed,
+            readings_per_unit: None,
+        },
+        &mut out,
+    )
+    .unwrap();
+    out
+}
+
+fn report_json(state: &FleetState, store: &ProfileStore) -> String {
+    serde_json::to_string_pretty(&finish(state, store, &FleetSettings::default())).unwrap()
+}
+
+/// Equal reports, or a panic naming the first line where they part.
+fn assert_same(got: &str, want: &str, what: &str) {
+    if got != want {
+        let at = got
+            .lines()
+            .zip(want.lines())
+            .position(|(a, b)| a != b)
+            .unwrap_or(got.lines().count().min(want.lines().count()));
+        panic!(
+            "{what}: reports differ at line {}: got {:?}, want {:?}",
+            at + 1,
+            got.lines().nth(at),
+            want.lines().nth(at)
+        );
+    }
+}
+
+fn one_pass(name: &str, text: &[u8], store: &ProfileStore) -> (FleetState, IngestStats) {
+    let mut state = FleetState::default();
+    let stats = state
+        .ingest(
+            name,
+            text,
+            &IngestOptions::default(),
+            store,
+            &FleetSettings::default(),
+        )
+        .unwrap();
+    (state, stats)
+}
+
+fn on_threads(
+    name: &str,
+    text: &[u8],
+    store: &ProfileStore,
+    how: Parallelism,
+) -> Result<(FleetState, IngestStats), String> {
+    let mut state = FleetState::default();
+    let mut seen = 0;
+    let stats = state
+        .ingest_parallel(
+            name,
+            text,
+            &IngestOptions::default(),
+            store,
+            &FleetSettings::default(),
+            how,
+            &mut |b| seen = b,
+        )
+        .map_err(|e| e.to_string())?;
+    // The progress count ends at every byte after the header.
+    assert!(seen <= text.len() as u64 && seen + 4096 >= text.len() as u64);
+    Ok((state, stats))
+}
+
+/// Awkward but valid input: byte-order mark, CRLF, quoted fields with the
+/// delimiter and line ends inside, blank records, and rejected rows.
+const AWKWARD: &str = "\u{feff}unit_id,taken_at,volts,profile,note\r\n\
+B1,2024-03-01 08:00,12.61,flooded-automotive,\"fine, clean\"\r\n\
+B1,2024-03-08 08:00,12.40,flooded-automotive,\"two\r\nlines\"\r\n\
+,,,,\r\n\
+B2,2024-03-01 08:00,12.2x,flooded-automotive,typo\r\n\
+B2,2024-03-02 09:00,12.05,flooded-automotive,\"quote \"\"inside\"\"\"\r\n\
+B3,2024-03-02 09:00,11.80,flooded-automotive,\r\n\
+B3,not a time,11.80,flooded-automotive,\r\n\
+B4,2024-03-05 10:00,12.72,flooded-automotive,last\r\n";
+
+#[test]
+fn threads_and_chunks_give_the_one_thread_report() {
+    let store = ProfileStore::builtin().unwrap();
+    let inputs: Vec<(&str, Vec<u8>)> = vec![
+        ("generated.csv", generated(300, 3)),
+        (
+            "demo-data/fleet.csv",
+            include_bytes!("../../demo-data/fleet.csv").to_vec(),
+        ),
+        ("awkward.csv", AWKWARD.as_bytes().to_vec()),
+    ];
+    for (name, text) in &inputs {
+        let (state, stats) = one_pass(name, text, &store);
+        let want = report_json(&state, &store);
+        for threads in [1, 2, 3] {
+            for chunk_bytes in [64, 700, 1 << 20] {
+                let how = Parallelism {
+                    threads,
+                    chunk_bytes,
+                };
+                let (got, got_stats) = on_threads(name, text, &store, how).unwrap();
+                assert_eq!(got_stats, stats, "{name} {how:?}");
+                assert_same(
+                    &report_json(&got, &store),
+                    &want,
+                    &format!("{name} {how:?}"),
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn an_input_error_is_the_one_thread_error() {
+    let store = ProfileStore::builtin().unwrap();
+    let mut text = generated(60, 4);
+    // A Latin-1 degree sign in a record about two thirds of the way in.
+    let at = text.len() * 2 / 3;
+    let line_start = at + text[at..].iter().position(|&b| b == b'\n').unwrap() + 1;
+    text.insert(line_start + 3, 0xB0);
+    let mut state = FleetState::default();
+    let want = state
+        .ingest(
+            "f.csv",
+            &text[..],
+            &IngestOptions::default(),
+            &store,
+            &FleetSettings::default(),
+        )
+        .unwrap_err()
+        .to_string();
+    assert!(want.contains("not valid UTF-8"), "{want}");
+    for chunk_bytes in [200, 5000] {
+        let how = Parallelism {
+            threads: 2,
+            chunk_bytes,
+        };
+        let got = on_threads("f.csv", &text, &store, how)
+            .map(|_| ())
+            .unwrap_err();
+        assert_eq!(got, want);
+    }
+}
+
+/// Split the records of a CSV text among `k` parts at random (each part keeps
+/// the header, and its records in a shuffled order).
+fn split(text: &[u8], k: usize, rng: &mut impl Rng) -> Vec<Vec<u8>> {
+    let text = std::str::from_utf8(text).unwrap();
+    let mut lines = text.lines();
+    let header = lines.next().unwrap();
+    let mut parts: Vec<Vec<&str>> = vec![Vec::new(); k];
+    for line in lines {
+        parts[rng.gen_range(0..k)].push(line);
+    }
+    parts
+        .into_iter()
+        .map(|mut p| {
+            p.shuffle(rng);
+            let mut out = format!("{header}\n");
+            for l in p {
+                out.push_str(l);
+                out.push('\n');
+            }
+            out.into_bytes()
+        })
+        .collect()
+}
+
+#[test]
+fn parts_analysed_apart_and_merged_in_any_order_give_the_one_pass_report() {
+    let store = ProfileStore::builtin().unwrap();
+    let text = generated(400, 9);
+    let (whole, _) = one_pass("fleet.csv", &text, &store);
+    let want = report_json(&whole, &store);
+    let mut rng = rand::rngs::StdRng::seed_from_u64(2024);
+    for k in [2, 3, 7] {
+        let parts = split(&text, k, &mut rng);
+        let mut states: Vec<FleetState> = parts
+            .iter()
+            .map(|p| one_pass("fleet.csv", p, &store).0)
+            .collect();
+        states.shuffle(&mut rng);
+        // Left to right…
+        let mut left = FleetState::default();
+        for s in states.clone() {
+            left.merge(s);
+        }
+        assert_same(
+            &report_json(&left, &store),
+            &want,
+            &format!("k = {k}, left fold"),
+        );
+        // …and as a balanced tree, so the grouping differs too.
+        while states.len() > 1 {
+            let mut next = Vec::new();
+            let mut it = states.into_iter();
+            while let Some(mut a) = it.next() {
+                if let Some(b) = it.next() {
+                    a.merge(b);
+                }
+                next.push(a);
+            }
+            states = next;
+        }
+        let tree = states.pop().unwrap();
+        assert_same(
+            &report_json(&tree, &store),
+            &want,
+            &format!("k = {k}, tree"),
+        );
+        assert_eq!(tree.rows_read, whole.rows_read);
+    }
+}
