@@ -336,3 +336,77 @@ fn the_demo_fleet_has_a_float_string_with_one_low_block() {
     let r = run(&["demo"]);
     assert!(r.stdout.contains("STRINGS ON FLOAT") && r.stdout.contains("HL-B3"));
 }
+
+#[test]
+fn the_float_section_of_a_profile_never_touches_a_rest_voltage() {
+    // Three profiles identical but for [float]: the built-in agm, one whose
+    // float compensation is −10 mV/K/cell with a wide window, and one with no
+    // [float] at all. A rested reading at 5 °C must give the same state of
+    // charge and the same temperature correction with each.
+    let agm = std::fs::read_to_string(repo("profiles/agm.toml")).unwrap();
+    let d = common::tmp();
+    let wild = agm
+        .replacen("id = \"agm\"", "id = \"agm-wild-float\"", 1)
+        .replace(
+            "compensation_mv_per_k_per_cell = { value = -3.0",
+            "compensation_mv_per_k_per_cell = { value = -10.0",
+        )
+        .replace(
+            "window_low_volts_per_cell = { value = 2.25",
+            "window_low_volts_per_cell = { value = 2.0",
+        );
+    assert_ne!(
+        wild,
+        agm.replacen("id = \"agm\"", "id = \"agm-wild-float\"", 1)
+    );
+    let at = agm.find("[float]").unwrap();
+    let end = agm[at + 1..]
+        .find("\n[")
+        .map_or(agm.len(), |i| at + 1 + i + 1);
+    let none = format!("{}{}", &agm[..at], &agm[end..]).replacen(
+        "id = \"agm\"",
+        "id = \"agm-no-float\"",
+        1,
+    );
+    assert!(!none.contains("[float]"));
+    std::fs::write(d.path().join("agm-wild-float.toml"), wild).unwrap();
+    std::fs::write(d.path().join("agm-no-float.toml"), none).unwrap();
+    let dir = d.path().to_str().unwrap();
+    let check = |id: &str| {
+        common::json(&[
+            "check",
+            "--volts",
+            "12.70",
+            "--temp",
+            "5C",
+            "--rest",
+            "24h",
+            "--after",
+            "charge",
+            "--profile",
+            id,
+            "--profiles",
+            dir,
+            "--format",
+            "json",
+        ])
+    };
+    let base = check("agm");
+    for id in ["agm-wild-float", "agm-no-float"] {
+        let v = check(id);
+        for key in [
+            "soc_percent",
+            "soc_interval_percent",
+            "ocv_25c_volts",
+            "temperature_correction_mv",
+            "action",
+        ] {
+            assert_eq!(v[key], base[key], "{id}: {key}");
+        }
+    }
+    // REFERENCES §1.3 (derived): the open-circuit coefficient is a few tenths
+    // of a mV/K per cell, so 20 K on 6 cells corrects by well under 60 mV; the
+    // −3 mV/K/cell float compensation would give 360 mV.
+    let corr = common::num(&base, "temperature_correction_mv").abs();
+    assert!(corr < 60.0, "{corr} mV");
+}
