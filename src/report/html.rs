@@ -71,6 +71,11 @@ pub fn escape(text: &str) -> String {
     out
 }
 
+/// Nothing may load from anywhere (inline CSS and `data:` images excepted) and
+/// no script may run; a browser blocks and logs any load the page attempts,
+/// which is how the browser test proves the page needs nothing outside itself.
+const CSP: &str = "default-src 'none'; style-src 'unsafe-inline'; img-src data:";
+
 const STYLE: &str = "
 :root { color-scheme: light; }
 body { margin: 0; background: #F7F6F2; color: #222; font: 15px/1.5 system-ui, -apple-system, 'Segoe UI', sans-serif; }
@@ -188,6 +193,7 @@ impl FleetFormat for Html {
             h,
             "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
              <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+             <meta http-equiv=\"Content-Security-Policy\" content=\"{CSP}\">\n\
              <meta name=\"generator\" content=\"restvolt {}\">\n\
              <title>Fleet report: {}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<main>\n",
             env!("CARGO_PKG_VERSION"),
@@ -954,6 +960,9 @@ mod tests {
     #[test]
     fn references_nothing_outside_itself() {
         let html = page();
+        assert!(html.contains(&format!(
+            "http-equiv=\"Content-Security-Policy\" content=\"{CSP}\""
+        )));
         let lower = html.to_ascii_lowercase();
         for bad in [
             "http://",
