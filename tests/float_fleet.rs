@@ -240,7 +240,27 @@ fn no_float_reading_becomes_a_state_of_charge() {
         ] {
             assert!(u[key].is_null(), "{id}: {key} = {}", u[key]);
         }
-        assert_eq!(u["flags"], serde_json::json!(["on-float"]), "{id}");
+        // The unit's flags are "on-float" and its own float checks' codes.
+        let flags: Vec<&str> = u["flags"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|f| f.as_str().unwrap())
+            .collect();
+        assert!(flags.contains(&"on-float"), "{id}: {flags:?}");
+        for f in flags {
+            assert!(
+                [
+                    "on-float",
+                    "float-low",
+                    "float-high",
+                    "float-deviation",
+                    "thermal-runaway-risk"
+                ]
+                .contains(&f),
+                "{id}: {f}"
+            );
+        }
     }
     for s in v["float_strings"].as_array().unwrap() {
         let note = s["state_of_charge_note"].as_str().unwrap();
@@ -248,7 +268,7 @@ fn no_float_reading_becomes_a_state_of_charge() {
             note.starts_with("State of charge cannot be read from float voltage"),
             "{note}"
         );
-        // No capacity column in the fleet input, so "fully charged on float"
+        // No capacity_ah column in this fixture, so "fully charged on float"
         // cannot be shown; the note names units to rest-test instead.
         assert!(s["fully_charged_on_float"].is_null());
         let rest: Vec<&str> = s["rest_test_units"]
@@ -274,6 +294,277 @@ fn no_float_reading_becomes_a_state_of_charge() {
     let rest = ups["rest_test_units"].as_array().unwrap();
     assert!(rest.contains(&Value::from("U1-C05")));
     assert!(!rest.contains(&Value::from("U1-C09")));
+}
+
+fn unit<'a>(v: &'a Value, id: &str) -> &'a Value {
+    v["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|u| u["unit_id"] == id)
+        .unwrap_or_else(|| panic!("no unit {id}"))
+}
+
+/// (rule, action) of a unit's reasons, in order.
+fn reasons(u: &Value) -> Vec<(String, String)> {
+    u["reasons"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            (
+                r["rule"].as_str().unwrap().to_string(),
+                r["action"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect()
+}
+
+fn reason_source<'a>(u: &'a Value, rule: &str, action: &str) -> &'a str {
+    u["reasons"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["rule"] == rule && r["action"] == action)
+        .unwrap_or_else(|| panic!("{}: no {rule} ({action})", u["unit_id"]))["source"]
+        .as_str()
+        .unwrap()
+}
+
+#[test]
+fn float_units_take_their_float_checks_action_in_the_unit_list_and_the_counts() {
+    let v = float_fixture();
+    // The hot VRLA cell, 12 K over its room (vrla-over-ambient 10 K, VRLA
+    // makers' manuals, published), is replaced: the most urgent unit.
+    let c09 = unit(&v, "U1-C09");
+    assert_eq!(c09["action"], "replace");
+    assert_eq!(c09["rank"], 1);
+    assert!(reason_source(c09, "thermal-runaway-risk", "replace").contains("VRLA makers' manuals"));
+    // The string's current rose 125 % at constant voltage (float-current-rise
+    // 50 %): that names no unit, so every unit of UPS-1 is to have its
+    // temperature measured (remeasure) before anything less urgent.
+    let c05 = unit(&v, "U1-C05");
+    assert_eq!(c05["action"], "remeasure");
+    assert_eq!(
+        reasons(c05),
+        [
+            ("thermal-runaway-risk", "remeasure"),
+            ("float-low", "capacity-test"),
+            ("float-deviation", "capacity-test"),
+            ("on-float", "serviceable"),
+        ]
+        .map(|(a, b)| (a.to_string(), b.to_string()))
+    );
+    // 0.070 V below the average: FIST 3-6 §1.2C (published); AGM: no
+    // equalizing (REFERENCES §5, published), so a capacity test.
+    assert!(reason_source(c05, "float-deviation", "capacity-test").contains("FIST 3-6"));
+    let string_reason = c05["reasons"][0]["detail"].as_str().unwrap();
+    assert!(
+        string_reason.starts_with("string Fixture UPS room / UPS-1: the float current rose"),
+        "{string_reason}"
+    );
+    // The temperature spread names its two ends, 24.0 °C at U1-C03 and
+    // 35.0 °C at U1-C09 (the fixture's second visit), and only those.
+    for (id, named) in [("U1-C03", true), ("U1-C09", true), ("U1-C01", false)] {
+        assert_eq!(
+            reasons(unit(&v, id))
+                .iter()
+                .any(|(r, _)| r == "temp-spread"),
+            named,
+            "{id}"
+        );
+    }
+    // The vented cell below the 2.13 V minimum (IEEE Std 450-1987,
+    // published) is equalized: the profile allows it (IEEE Std 450-1987 §4.4).
+    let v04 = unit(&v, "V1-C04");
+    assert_eq!(v04["action"], "equalize");
+    assert!(reason_source(v04, "float-low", "equalize").contains("IEEE Std 450"));
+    // A healthy vented cell stays serviceable, with the window as its evidence.
+    let v01 = unit(&v, "V1-C01");
+    assert_eq!(v01["action"], "serviceable");
+    assert!(reasons(v01).contains(&("float-window".into(), "serviceable".into())));
+
+    // The counts are of the same actions: 1 replace and 11 remeasure in UPS-1
+    // (12 cells), 1 equalize and 5 serviceable in VLA-1 (6 cells).
+    let s = &v["summary"];
+    assert_eq!(
+        s["by_action"],
+        serde_json::json!({"replace": 1, "remeasure": 11, "equalize": 1, "serviceable": 5})
+    );
+    assert_eq!(
+        s["by_site"],
+        serde_json::json!({
+            "Fixture UPS room": {"replace": 1, "remeasure": 11},
+            "Fixture battery room": {"equalize": 1, "serviceable": 5}
+        })
+    );
+    // Ranked by action, most urgent first.
+    let order: Vec<&str> = v["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|u| u["action"].as_str().unwrap())
+        .collect();
+    let rank = |a: &str| {
+        [
+            "replace",
+            "recharge-now",
+            "remeasure",
+            "equalize",
+            "capacity-test",
+            "recharge",
+            "serviceable",
+        ]
+        .iter()
+        .position(|x| *x == a)
+        .unwrap()
+    };
+    assert!(
+        order.windows(2).all(|w| rank(w[0]) <= rank(w[1])),
+        "{order:?}"
+    );
+}
+
+/// A healthy 48 V AGM string of four blocks on float, at two visits a month
+/// apart, with the float current and (optionally) a capacity per row.
+/// Invented readings: 13.62 V = 2.270 V per cell, inside the AGM window
+/// 2.25–2.30 V per cell at 25 °C compensated to 23 °C (profile, from memory).
+fn healthy_string(currents: [f64; 2], capacity: impl Fn(usize, usize) -> String) -> String {
+    let mut text = String::from(
+        "unit_id,site,string,position,profile,taken_at,volts,temp_c,after,float_current_a,ambient_c,capacity_ah\n",
+    );
+    for (k, (day, current)) in [("2026-05-04", currents[0]), ("2026-06-01", currents[1])]
+        .into_iter()
+        .enumerate()
+    {
+        for b in 1..=4 {
+            text.push_str(&format!(
+                "HS-B{b},Test room,HS-1,{b},agm,{day} 10:00,13.62,23.0,float,{current},22.5,{}\n",
+                capacity(k, b)
+            ));
+        }
+    }
+    text
+}
+
+fn fleet_of(text: &str) -> Value {
+    let dir = common::tmp();
+    let path = dir.path().join("string.csv");
+    std::fs::write(&path, text).unwrap();
+    fleet_json(&path)
+}
+
+#[test]
+fn a_capacity_column_lets_a_settled_string_be_shown_fully_charged() {
+    // 1 mA per Ah (the AGM profile's expected float current, from memory) ×
+    // 100 Ah = 0.100 A expected; 0.10 A and 0.11 A at two successive visits
+    // are within the rules table's ×2 (float-settled-factor, common practice).
+    let v = fleet_of(&healthy_string([0.10, 0.11], |_, _| "100".into()));
+    let s = string(&v, "Test room / HS-1");
+    assert!((s["expected_current_amperes"].as_f64().unwrap() - 0.100).abs() < 1e-12);
+    assert_eq!(s["fully_charged_on_float"], true);
+    assert!(s["rest_test_units"].as_array().unwrap().is_empty());
+    let note = s["state_of_charge_note"].as_str().unwrap();
+    assert!(note.contains("fully charged on float"), "{note}");
+    // Still no state of charge on any unit, and nothing to do.
+    for u in v["units"].as_array().unwrap() {
+        assert!(u["soc_percent"].is_null());
+        assert_eq!(u["action"], "serviceable");
+    }
+
+    // Given once, on the first visit's rows only, it is still the string's.
+    let v = fleet_of(&healthy_string([0.10, 0.11], |k, _| {
+        if k == 0 {
+            "100".into()
+        } else {
+            String::new()
+        }
+    }));
+    assert_eq!(
+        string(&v, "Test room / HS-1")["fully_charged_on_float"],
+        true
+    );
+
+    // 0.30 A is three times the expected 0.100 A: beyond ×2, not settled.
+    let v = fleet_of(&healthy_string([0.30, 0.30], |_, _| "100".into()));
+    assert_eq!(
+        string(&v, "Test room / HS-1")["fully_charged_on_float"],
+        false
+    );
+
+    // Rows that disagree (100 Ah and 120 Ah) give no capacity, and say so.
+    let v = fleet_of(&healthy_string([0.10, 0.11], |_, b| {
+        if b == 3 {
+            "120".into()
+        } else {
+            "100".into()
+        }
+    }));
+    let s = string(&v, "Test room / HS-1");
+    assert!(s["expected_current_amperes"].is_null());
+    assert!(s["fully_charged_on_float"].is_null());
+    let notes: Vec<&str> = s["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|n| n.as_str().unwrap())
+        .collect();
+    assert!(
+        notes
+            .iter()
+            .any(|n| n.contains("different capacities (100, 120 Ah)")),
+        "{notes:?}"
+    );
+}
+
+#[test]
+fn earlier_visits_sum_every_unit_so_a_low_first_unit_does_not_hide_a_rise() {
+    // Invented: at the first visit block A1 (first by name) floats low at
+    // 13.20 V while the others carry the rest, 13.70 V each: the string holds
+    // 13.20 + 3 × 13.70 = 54.30 V. At the second visit all four share it
+    // evenly, 13.575 V each = 54.30 V. The current doubles, 0.10 → 0.20 A, at
+    // that constant voltage: +100 % is over the rules table's
+    // float-current-rise 50 % (VRLA makers' manuals, REFERENCES §5).
+    // Estimating the first visit from A1 alone (4 × 13.20 = 52.80 V) would
+    // make the voltage look 2.8 % lower and skip the rule.
+    let mut text = String::from(
+        "unit_id,site,string,position,profile,taken_at,volts,temp_c,after,float_current_a,ambient_c\n",
+    );
+    for (b, first) in [("A1", 13.20), ("A2", 13.70), ("A3", 13.70), ("A4", 13.70)] {
+        text.push_str(&format!(
+            "{b},Test room,LV-1,,agm,2026-05-04 10:00,{first},23.0,float,0.10,22.5\n"
+        ));
+        text.push_str(&format!(
+            "{b},Test room,LV-1,,agm,2026-06-01 10:00,13.575,23.0,float,0.20,22.5\n"
+        ));
+    }
+    let v = fleet_of(&text);
+    let s = string(&v, "Test room / LV-1");
+    assert_eq!(
+        flags(&s["flags"]),
+        set(&[("thermal-runaway-risk", "float-current-rise")])
+    );
+    let detail = s["flags"][0]["detail"].as_str().unwrap();
+    assert!(
+        detail.contains("rose 100 %") && detail.contains("54.30 V"),
+        "{detail}"
+    );
+
+    // A visit at which one block went unread has no string voltage: it is
+    // left out, with a note, and one visit's current judges nothing.
+    let partial: String = text
+        .lines()
+        .filter(|l| !l.starts_with("A4,Test room,LV-1,,agm,2026-05-04"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    let v = fleet_of(&partial);
+    let s = string(&v, "Test room / LV-1");
+    assert!(flags(&s["flags"]).is_empty());
+    let notes = s["notes"].to_string();
+    assert!(
+        notes.contains("2026-05-04 10:00 gave a float voltage for 3 of the string's 4 units"),
+        "{notes}"
+    );
 }
 
 #[test]
