@@ -433,6 +433,22 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             format!("{} cells: expected 1–400", s.cells.value),
         ));
     }
+    if let Some(f) = &s.float {
+        let c = f.compensation_mv_per_k_per_cell.value;
+        // Before the range check, so 0 and positive values get this message.
+        // Common practice: a float charger lowers its voltage as the battery
+        // warms (about −3 mV/K per cell); none, or the other way, overcharges
+        // a warm battery.
+        if c >= 0.0 {
+            return Err(invalid(
+                origin,
+                "float.compensation_mv_per_k_per_cell.value",
+                format!(
+                    "{c} mV/K per cell: a float compensation must be negative, as the float voltage is lowered when the battery warms (typically about -3 mV/K per cell)"
+                ),
+            ));
+        }
+    }
     for (key, v, lo, hi, unit) in ranges(s) {
         check_range(origin, key, v, lo, hi, unit)?;
     }
@@ -663,6 +679,22 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.contains("charging compensation"), "{err}");
+
+        // The float compensation lowers the float voltage as it warms
+        // (−3 mV/K per cell, common practice): 0 and positive are refused.
+        for bad in ["0.0", "2.0"] {
+            let text = include_str!("../../profiles/agm.toml").replace(
+                "compensation_mv_per_k_per_cell = { value = -3.0",
+                &format!("compensation_mv_per_k_per_cell = {{ value = {bad}"),
+            );
+            let err = Profile::from_toml(&text, "f.toml").unwrap_err().to_string();
+            assert!(
+                err.contains("f.toml")
+                    && err.contains("float.compensation_mv_per_k_per_cell")
+                    && err.contains("must be negative"),
+                "{err}"
+            );
+        }
 
         let few = include_str!("../../profiles/agm.toml").replace(
             "points = [[0.0, 1.975], [25.0, 2.025], [50.0, 2.070], [75.0, 2.110], [100.0, 2.140]]",
