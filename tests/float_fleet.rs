@@ -701,3 +701,139 @@ fn the_float_section_of_a_profile_never_touches_a_rest_voltage() {
     let corr = common::num(&base, "temperature_correction_mv").abs();
     assert!(corr < 60.0, "{corr} mV");
 }
+
+#[test]
+fn check_float_reaches_the_fleet_verdict_by_hand() {
+    // The whole string of `healthy_string` checked as one unit: 4 × 13.62 V =
+    // 54.48 V over 24 cells, the same temperatures, currents and capacity.
+    let by_hand = |now: &str, before: &str| {
+        common::json(&[
+            "check",
+            "--float",
+            "--profile",
+            "agm",
+            "--volts",
+            "54.48",
+            "--cells",
+            "24",
+            "--temp",
+            "23C",
+            "--ambient",
+            "22.5C",
+            "--float-current",
+            now,
+            "--capacity-ah",
+            "100",
+            "--previous-float-current",
+            before,
+            "--previous-volts",
+            "54.48",
+            "--previous-at",
+            "2026-05-04 10:00",
+            "--format",
+            "json",
+        ])
+    };
+    for (currents, fully_charged, rising) in [
+        // 0.10 then 0.11 A against 0.100 A expected (1 mA/Ah × 100 Ah, profile
+        // from memory; ×2, common practice): settled.
+        ([0.10, 0.11], true, false),
+        // 0.10 then 0.30 A at the same voltage: +200 % is over the 50 % of
+        // float-current-rise (VRLA makers' manuals, REFERENCES §5), and far
+        // from the expected current.
+        ([0.10, 0.30], false, true),
+    ] {
+        let fleet = fleet_of(&healthy_string(currents, |_, _| "100".into()));
+        let s = string(&fleet, "Test room / HS-1");
+        let c = by_hand(&currents[1].to_string(), &currents[0].to_string());
+        assert_eq!(c["schema"], "restvolt.check-float/1");
+        assert_eq!(s["fully_charged_on_float"], fully_charged);
+        assert_eq!(c["fully_charged_on_float"], fully_charged);
+        assert_eq!(c["expected_current_amperes"], s["expected_current_amperes"]);
+        assert_eq!(c["float_current_amperes"], currents[1]);
+        let runaway = |flags: &Value| {
+            flags
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|f| f["rule"] == "float-current-rise")
+        };
+        assert_eq!(runaway(&s["flags"]), rising);
+        assert_eq!(runaway(&c["flags"]), rising);
+        // The unit takes the string's action, as in the fleet's unit list.
+        let fleet_action = unit(&fleet, "HS-B1")["action"].clone();
+        assert_eq!(c["action"], fleet_action);
+        assert_eq!(
+            c["action"],
+            if rising { "remeasure" } else { "serviceable" }
+        );
+        let note = c["state_of_charge_note"].as_str().unwrap();
+        assert!(note.starts_with("State of charge cannot be read from float voltage"));
+        if !fully_charged {
+            assert!(
+                note.contains("take the unit off float and rest-test it"),
+                "{note}"
+            );
+        }
+    }
+
+    // Without the previous visit one current cannot show a settled string.
+    let c = common::json(&[
+        "check",
+        "--float",
+        "--profile",
+        "agm",
+        "--volts",
+        "13.62",
+        "--float-current",
+        "0.1",
+        "--capacity-ah",
+        "100",
+        "--format",
+        "json",
+    ]);
+    assert!(c["fully_charged_on_float"].is_null());
+    assert!(c.get("soc_percent").is_none());
+
+    // The previous current needs the voltage and time it was read at.
+    let r = run(&[
+        "check",
+        "--float",
+        "--volts",
+        "13.62",
+        "--profile",
+        "agm",
+        "--float-current",
+        "0.1",
+        "--previous-float-current",
+        "0.1",
+    ]);
+    assert_eq!(r.code, Some(2));
+    assert!(r.stderr.contains("--previous-volts") && r.stderr.contains("--previous-at"));
+    let r = run(&["check", "--volts", "12.4", "--float-current", "0.1"]);
+    assert_eq!(r.code, Some(2));
+    assert!(r.stderr.contains("--float"), "{}", r.stderr);
+}
+
+#[test]
+fn check_float_counts_its_cells_in_words() {
+    for (cells, words) in [("1", "(1 cell)"), ("6", "(6 cells)")] {
+        let volts = if cells == "1" { "2.27" } else { "13.62" };
+        let r = run(&[
+            "check",
+            "--float",
+            "--profile",
+            "agm",
+            "--volts",
+            volts,
+            "--cells",
+            cells,
+        ]);
+        assert_eq!(r.code, Some(0), "{}", r.stderr);
+        assert!(
+            r.stdout.lines().next().unwrap().ends_with(words),
+            "{}",
+            r.stdout
+        );
+    }
+}

@@ -76,6 +76,7 @@ impl From<HydroArg> for HydrometerRule {
   restvolt check --volts 12.38 --temp -5C --rest 40m --after charge --meter 0.5%+2
   restvolt check --sg 1.265,1.262,1.268,1.200,1.264,1.266 --temp 50F --profile flooded-automotive
   restvolt check --volts 13.52 --float --profile agm --temp 24C --ambient 22C
+  restvolt check --volts 13.62 --float --profile agm --float-current 0.1 --capacity-ah 100
 
 Actions, most urgent first (the first that applies wins):
   replace        take the unit out of service and replace it
@@ -126,6 +127,37 @@ pub struct CheckArgs {
     /// Ambient temperature, for --float: 22C
     #[arg(long, value_name = "TEMP", allow_hyphen_values = true)]
     pub ambient: Option<String>,
+    /// The string's float current at this visit, in amperes, for --float: 0.10
+    #[arg(long, value_name = "A", requires = "float", allow_hyphen_values = true)]
+    pub float_current: Option<String>,
+    /// Rated capacity of the unit (and so of its string), in Ah, for --float: 100
+    #[arg(
+        long,
+        visible_alias = "capacity",
+        value_name = "AH",
+        requires = "float",
+        allow_hyphen_values = true
+    )]
+    pub capacity_ah: Option<String>,
+    /// The string's float current at the previous visit, in amperes (with --float-current)
+    #[arg(
+        long,
+        value_name = "A",
+        requires_all = ["float_current", "previous_volts", "previous_at"],
+        allow_hyphen_values = true
+    )]
+    pub previous_float_current: Option<String>,
+    /// Voltage read the same way (same unit, or whole string) at the previous visit
+    #[arg(
+        long,
+        value_name = "V",
+        requires = "previous_float_current",
+        allow_hyphen_values = true
+    )]
+    pub previous_volts: Option<String>,
+    /// When the previous visit was: 2026-09-15 09:30
+    #[arg(long, value_name = "TIME", requires = "previous_float_current")]
+    pub previous_at: Option<String>,
     /// Rules overrides (TOML, see `restvolt rules`)
     #[arg(long, value_name = "FILE")]
     pub rules: Option<PathBuf>,
