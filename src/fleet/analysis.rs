@@ -853,6 +853,7 @@ fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Flo
         // A unit whose reading cannot be checked (a float voltage of 0 V or
         // below, a negative current) is set aside with its own error, so the
         // rest of the string is still checked.
+        let mut set_aside: Vec<String> = Vec::new();
         let analysis = loop {
             match crate::float::analyse_string(profile, &name, &readings, &previous, rules) {
                 Ok(a) => break Some(a),
@@ -870,7 +871,8 @@ fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Flo
                         None => readings.drain(..).map(|r| r.unit_id).collect(),
                     };
                     for id in unchecked {
-                        findings.insert(id, float_unchecked(&e));
+                        findings.insert(id.clone(), float_unchecked(&e));
+                        set_aside.push(id);
                     }
                     if readings.is_empty() {
                         break None;
@@ -880,6 +882,9 @@ fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Flo
         };
         let Some(mut a) = analysis else { continue };
         a.notes.extend(notes);
+        if !set_aside.is_empty() {
+            set_aside_units(&mut a, &set_aside);
+        }
         for c in &a.per_unit {
             let mut reasons: Vec<FleetReason> = c.reasons.iter().map(FleetReason::from).collect();
             reasons.extend(a.reasons_for_unit(&c.unit_id).iter().map(|r| {
@@ -902,6 +907,22 @@ fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Flo
         out.push(a);
     }
     (out, findings)
+}
+
+/// Say which units of a string were set aside, and withdraw "fully charged
+/// on float": a unit that could not be checked may be the one short of charge.
+fn set_aside_units(a: &mut crate::float::StringFloatAnalysis, ids: &[String]) {
+    let ids = ids.join(", ");
+    a.notes.push(format!(
+        "not checked: {ids} (see the unit list); the string's figures are of the other units"
+    ));
+    if a.fully_charged_on_float == Some(true) {
+        a.fully_charged_on_float = None;
+        a.state_of_charge_note = a.state_of_charge_note.replace(
+            "This string is fully charged on float: ",
+            &format!("Not shown fully charged, as {ids} could not be checked, though "),
+        );
+    }
 }
 
 /// The findings of a unit on float whose reading could not be checked.
