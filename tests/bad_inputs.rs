@@ -120,7 +120,7 @@ const CASES: &[Case] = &[
     case(
         &["check", "--volts", "12.4", "--cells", "0"],
         2,
-        &["cells", "at least 1"],
+        &["--cells", "0 is not a number of cells", "1–400"],
     ),
     // ---- check: hydrometer and profile
     case(
@@ -170,13 +170,18 @@ const CASES: &[Case] = &[
     // ---- settle: CSV files
     case(
         &["settle", "@settle-decreasing.csv", "--after", "charge"],
-        1,
-        &["reading 3", "not later than reading 2", "time order"],
+        2,
+        &[
+            "settle-decreasing.csv:4",
+            "column 'minutes'",
+            "not later than line 3 (30 min",
+            "time order",
+        ],
     ),
     case(
         &["settle", "@settle-equal-times.csv", "--after", "charge"],
-        1,
-        &["reading 3", "distinct time"],
+        2,
+        &["settle-equal-times.csv:4", "'20'", "distinct time"],
     ),
     case(
         &["settle", "@settle-nan.csv", "--after", "charge"],

@@ -194,16 +194,15 @@ pub fn check_float(
     let ambient = args
         .ambient
         .as_deref()
-        .map(crate::units::parse_temperature)
-        .transpose()
-        .map_err(|e| CliError::usage(format!("--ambient: {e}")))?;
+        .map(|s| super::check::temperature_option("--ambient", s))
+        .transpose()?;
     let reading = crate::float::FloatReading {
         unit_id: "unit".into(),
         string: None,
         position: None,
         taken_at: None,
         volts,
-        cells: args.cells.unwrap_or(profile.cells()),
+        cells: super::check::cells_option(args.cells)?.unwrap_or(profile.cells()),
         temperature,
         ambient,
         float_current: None,
