@@ -98,9 +98,13 @@ pub fn read_points<R: Read>(
         .collect::<Vec<_>>();
     let cols = find_columns(name, header_no, &headers)?;
     let mut points = Vec::new();
+    let mut lines = LineCounter::default();
     for record in csv.records() {
         let record = record.map_err(|e| csv_error(name, &e))?;
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
+        let start = record
+            .position()
+            .map_or(0, |p| usize::try_from(p.byte()).unwrap_or(usize::MAX));
+        let line = lines.record_line(text, start);
         if record.iter().all(|f| f.is_empty()) {
             continue;
         }
@@ -131,6 +135,41 @@ pub fn read_points<R: Read>(
         });
     }
     Ok(points)
+}
+
+/// Lines of records, counted from their bytes. The CSV reader's own line is
+/// where it started looking for a record: before the `\n` of a CRLF, blank
+/// lines and comment lines, so a CRLF file had every line one short.
+#[derive(Default)]
+struct LineCounter {
+    /// Bytes counted so far.
+    at: usize,
+    /// `\n` bytes before `at`.
+    newlines: u64,
+}
+
+impl LineCounter {
+    /// The 1-based line of the record the reader started looking for at byte `from`.
+    fn record_line(&mut self, text: &str, from: usize) -> u64 {
+        let b = text.as_bytes();
+        let mut i = from.min(b.len());
+        loop {
+            while i < b.len() && matches!(b[i], b'\r' | b'\n') {
+                i += 1;
+            }
+            if b.get(i) != Some(&b'#') {
+                break;
+            }
+            while i < b.len() && b[i] != b'\n' {
+                i += 1;
+            }
+        }
+        if i >= self.at {
+            self.newlines += b[self.at..i].iter().filter(|&&c| c == b'\n').count() as u64;
+            self.at = i;
+        }
+        self.newlines + 1
+    }
 }
 
 fn csv_error(name: &str, e: &csv::Error) -> CalibrateError {

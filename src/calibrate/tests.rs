@@ -492,3 +492,32 @@ fn a_per_cell_sg_list_is_averaged() {
     .unwrap();
     assert!((two_cells[0].volts_per_cell_25c.0 - mean[0].volts_per_cell_25c.0).abs() < 1e-12);
 }
+
+#[test]
+fn lines_are_counted_in_crlf_files_and_past_blank_and_comment_lines() {
+    let line_of_error = |csv: &str| {
+        let e = read_points("t.csv", csv.as_bytes(), &base("flooded-automotive"))
+            .unwrap_err()
+            .to_string();
+        e.split(':').nth(1).unwrap().parse::<u64>().unwrap()
+    };
+    assert_eq!(
+        line_of_error("soc_percent,volts,temp_c\r\n20,12.06,25\r\n50,abc,25\r\n"),
+        3
+    );
+    assert_eq!(
+        line_of_error("soc_percent,volts,temp_c\n\n\n# c\n50,abc,25\n"),
+        5
+    );
+    assert_eq!(
+        line_of_error("# a\r\n# b\r\nsoc_percent,volts,temp_c\r\n\r\n50,abc,25\r\n"),
+        5
+    );
+    let p = read_points(
+        "t.csv",
+        &b"soc_percent,volts,temp_c\r\n20,12.06,25\r\n\r\n50,12.25,25\r\n"[..],
+        &base("flooded-automotive"),
+    )
+    .unwrap();
+    assert_eq!(p.iter().map(|p| p.line).collect::<Vec<_>>(), [2, 4]);
+}

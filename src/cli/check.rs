@@ -275,7 +275,9 @@ fn parse_sg_list(s: &str) -> Result<Vec<SpecificGravity>, CliError> {
 
 /// Run `restvolt check`.
 pub fn run(args: CheckArgs, store: &ProfileStore) -> CmdResult {
-    let profile = store.get(&args.profile).map_err(CliError::usage)?;
+    let profile = store
+        .get(&args.profile)
+        .map_err(|e| CliError::usage(format!("--profile: {e}")))?;
     let rules = load_rules(&args.rules)?;
     let setup = setup_from(&args)?;
     let temperature: Option<Celsius> = match &args.temp {

@@ -33,7 +33,12 @@ pub struct SettleArgs {
     /// CSV of readings during one rest (`-` for standard input)
     pub file: Option<PathBuf>,
     /// A hand-typed reading ELAPSED=VOLTS, e.g. 30m=12.93 (repeat)
-    #[arg(long = "reading", value_name = "ELAPSED=VOLTS")]
+    // Hyphen values reach the parser so `--reading -40m=12.8` gets its own message.
+    #[arg(
+        long = "reading",
+        value_name = "ELAPSED=VOLTS",
+        allow_hyphen_values = true
+    )]
     pub readings: Vec<String>,
     /// When the charge or discharge ended, for timestamped files: 2026-11-30 14:05
     #[arg(long, value_name = "TIME")]
@@ -99,7 +104,9 @@ fn parse_time(s: &str) -> Result<chrono::NaiveDateTime, CliError> {
 
 /// Run `restvolt settle`.
 pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
-    let profile = store.get(&args.profile).map_err(CliError::usage)?;
+    let profile = store
+        .get(&args.profile)
+        .map_err(|e| CliError::usage(format!("--profile: {e}")))?;
     let rules = load_rules(&args.rules)?;
     let ended_at = args.ended_at.as_deref().map(parse_time).transpose()?;
     let mut readings = Vec::new();
