@@ -196,9 +196,8 @@ pub fn check_float(
     let ambient = args
         .ambient
         .as_deref()
-        .map(crate::units::parse_temperature)
-        .transpose()
-        .map_err(|e| CliError::usage(format!("--ambient: {e}")))?;
+        .map(|s| super::check::temperature_option("--ambient", s))
+        .transpose()?;
     let number = |flag: &str, text: &Option<String>, expected: &str| {
         text.as_deref()
             .map(|t| {
@@ -249,7 +248,7 @@ pub fn check_float(
         position: None,
         taken_at: None,
         volts,
-        cells: args.cells.unwrap_or(profile.cells()),
+        cells: super::check::cells_option(args.cells)?.unwrap_or(profile.cells()),
         temperature,
         ambient,
         float_current,
@@ -426,7 +425,9 @@ pub struct CalibrateArgs {
 /// Run `restvolt calibrate`.
 pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) -> CmdResult {
     use crate::calibrate::{calibrate, read_points, sha256_hex, CalibrateOptions};
-    let base = store.get(&a.from).map_err(CliError::usage)?;
+    let base = store
+        .get(&a.from)
+        .map_err(|e| CliError::usage(format!("--from: {e}")))?;
     let name = a.file.display().to_string();
     let bytes = std::fs::read(&a.file).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
     let points = read_points(&name, bytes.as_slice(), base).map_err(CliError::usage)?;
@@ -440,7 +441,10 @@ pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) 
         input_sha256: sha256_hex(&bytes),
         today: chrono::Local::now().date_naive(),
     };
-    let c = calibrate(&points, base, &opts).map_err(CliError::usage)?;
+    let c = calibrate(&points, base, &opts).map_err(|e| match e {
+        crate::calibrate::CalibrateError::BadId(_) => CliError::usage(format!("--id: {e}")),
+        e => CliError::usage(e),
+    })?;
     let toml = c.to_toml().map_err(CliError::fail)?;
     output::write_atomic(&a.output, toml.as_bytes(), std::slice::from_ref(&a.file))?;
     let text = match a.format {

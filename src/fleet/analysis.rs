@@ -74,13 +74,27 @@ impl FleetState {
         settings: &FleetSettings,
     ) -> Result<IngestStats, IngestError> {
         let mut rejects = Vec::new();
-        let stats = ingest(
+        let mut late = Vec::new();
+        let mut stats = ingest(
             name,
             reader,
             opts,
-            &mut |r| self.add_row(r, store, settings),
+            &mut |r| match store.get(&r.profile).ok().and_then(|p| unusable(p, &r)) {
+                Some(reason) => late.push(Rejected {
+                    file: r.source.file.to_string(),
+                    line: r.source.line,
+                    reason,
+                }),
+                None => self.add_row(r, store, settings),
+            },
             &mut |r| rejects.push(r),
         )?;
+        // Rows the reader accepted but their profile cannot use are rejects too,
+        // so that rows read = accepted + rejected still holds.
+        stats.rows_accepted -= late.len() as u64;
+        stats.rows_rejected += late.len() as u64;
+        rejects.extend(late);
+        rejects.sort_by_key(|r| r.line);
         for r in rejects {
             self.add_rejected(r);
         }
@@ -126,6 +140,30 @@ impl FleetState {
         }
         self.notices.sort();
     }
+}
+
+/// Why a row the reader accepted cannot be assessed with its profile, in the
+/// reader's reject style (column, what is wrong, what is expected); `None`
+/// when it can. The reader knows profile ids, not their cell counts or types.
+fn unusable(p: &Profile, row: &FleetRow) -> Option<String> {
+    if row.sg.is_empty() {
+        return None;
+    }
+    if !p.hydrometer_usable() {
+        return Some(format!(
+            "column `sg`: profile '{}' is valve-regulated: its electrolyte cannot be sampled, so SG readings do not apply",
+            p.id()
+        ));
+    }
+    let cells = row.cells.unwrap_or(p.cells());
+    if row.sg.len() > 1 && row.sg.len() != cells as usize {
+        return Some(format!(
+            "column `sg`: {} values for {cells} cells (profile '{}'): give one per cell, or one mean value",
+            row.sg.len(),
+            p.id()
+        ));
+    }
+    None
 }
 
 /// Heat-ageing factor at a temperature: 2^((T − 25)/N) above 25 °C, 1 below.

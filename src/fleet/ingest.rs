@@ -71,8 +71,13 @@ pub const MAX_LINE_BYTES: u64 = 16 * 1024 * 1024;
 pub const MAX_REST_HOURS: f64 = 10.0 * 365.25 * 24.0;
 /// Unit voltages beyond ±this are not a lead-acid unit or string.
 pub const MAX_ABS_VOLTS: f64 = 1000.0;
-/// Plausible electrolyte/ambient temperature range, °C.
-pub const TEMPERATURE_RANGE_C: (f64, f64) = (-50.0, 80.0);
+/// Plausible electrolyte/ambient temperature range, °C: the range the
+/// electrolyte model accepts (as `check --temp`), so that a °F value in a °C
+/// column such as 77 is named, not read as 77 °C.
+pub const TEMPERATURE_RANGE_C: (f64, f64) = (
+    crate::electrolyte::TEMPERATURE_MIN_C,
+    crate::electrolyte::TEMPERATURE_MAX_C,
+);
 /// Plausible raw specific gravity range of sulfuric-acid electrolyte.
 pub const SG_RANGE: (f64, f64) = (1.0, 1.4);
 

@@ -37,6 +37,8 @@ pub struct HistoryPoint {
     pub rested: bool,
     /// The full row, for the latest reading's assessment.
     pub row: FleetRow,
+    /// Readings of the unit at this same time (1 unless duplicated).
+    pub copies: u64,
 }
 
 impl HistoryPoint {
@@ -73,6 +75,10 @@ impl HistoryPoint {
                     .map(|t| t.0.to_bits())
                     .cmp(&other.row.temperature.map(|t| t.0.to_bits()))
             })
+            // Everything else in the row (ohmic value, note, source, …), so that
+            // which of two same-time readings is kept never depends on arrival.
+            // Reached only on a tie in all of the above: rare and cheap.
+            .then_with(|| format!("{:?}", self.row).cmp(&format!("{:?}", other.row)))
     }
 }
 
@@ -101,7 +107,8 @@ pub struct UnitSummary {
     pub hottest_milli_c: Option<i64>,
     /// Earliest ohmic reading (time, mΩ bits) — a baseline when none is given.
     pub first_ohmic: Option<(NaiveDateTime, u64)>,
-    /// Duplicate readings found (same unit and time) within the kept history.
+    /// Duplicate readings (same unit and time) among the kept history's times:
+    /// Σ (copies − 1). Counted on the final kept set, so it is order-free.
     pub duplicates: u64,
     /// Readings with too little rest.
     pub short_rest: u64,
@@ -167,19 +174,20 @@ impl UnitSummary {
             after: row.after,
             rested,
             row,
+            copies: 1,
         };
         self.insert_history(point);
+        self.count_duplicates();
     }
 
     fn insert_history(&mut self, p: HistoryPoint) {
-        if self.history.iter().any(|h| h.taken_at == p.taken_at) {
-            self.duplicates += 1;
+        if let Some(pos) = self.history.iter().position(|h| h.taken_at == p.taken_at) {
             // Keep one of the two by the total order, so the choice is order-free.
-            if let Some(pos) = self.history.iter().position(|h| h.taken_at == p.taken_at) {
-                if p.order(&self.history[pos]) == Ordering::Greater {
-                    self.history[pos] = p;
-                }
+            let copies = self.history[pos].copies + p.copies;
+            if p.order(&self.history[pos]) == Ordering::Greater {
+                self.history[pos] = p;
             }
+            self.history[pos].copies = copies;
             return;
         }
         let pos = self
@@ -216,10 +224,17 @@ impl UnitSummary {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
-        self.duplicates += other.duplicates;
         for p in other.history {
             self.insert_history(p);
         }
+        self.count_duplicates();
+    }
+
+    /// A running count would depend on arrival order: a copy of a reading
+    /// already pushed out of the history is not seen as a copy. Counting on
+    /// the kept times is the same whatever the order.
+    fn count_duplicates(&mut self) {
+        self.duplicates = self.history.iter().map(|h| h.copies - 1).sum();
     }
 
     /// Least-squares slope of rested state of charge, % per 30 days, when two or more readings span time.

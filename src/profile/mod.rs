@@ -94,6 +94,13 @@ const DERIVED_STEP_PERCENT: f64 = 5.0;
 impl Profile {
     /// Parse and validate a profile from TOML text; `origin` names it in messages.
     pub fn from_toml(text: &str, origin: &str) -> Result<Profile, ProfileError> {
+        if text.trim_start_matches('\u{feff}').trim().is_empty() {
+            return Err(ProfileError::Syntax {
+                origin: origin.to_string(),
+                line: 1,
+                message: "the file is empty: expected a profile in TOML (id, name, family, cells, [curve], …; copy one of the shipped profiles/*.toml)".into(),
+            });
+        }
         let spec: ProfileFile = toml::from_str(text).map_err(|e| ProfileError::Syntax {
             origin: origin.to_string(),
             line: toml_error_line(text, &e),
@@ -221,8 +228,12 @@ impl Profile {
 
 /// The 1-based line of `text` a TOML error points at (1 when it has no position).
 pub fn toml_error_line(text: &str, e: &toml::de::Error) -> usize {
+    // Counted on bytes: a span need not fall on a character boundary.
     e.span()
-        .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
+        .map(|s| {
+            let upto = &text.as_bytes()[..s.start.min(text.len())];
+            upto.iter().filter(|&&b| b == b'\n').count() + 1
+        })
         .unwrap_or(1)
 }
 
@@ -414,8 +425,12 @@ fn ranges(s: &ProfileFile) -> Vec<RangeRow<'_>> {
     rows
 }
 
+/// Longest profile id: ids are typed (`--profile`) and printed in tables.
+pub const MAX_ID_CHARS: usize = 64;
+
 fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
     let id_ok = !s.id.is_empty()
+        && s.id.len() <= MAX_ID_CHARS
         && s.id
             .chars()
             .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-');
@@ -423,7 +438,10 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
         return Err(invalid(
             origin,
             "id",
-            format!("'{}' must be lower-case letters, digits and hyphens", s.id),
+            format!(
+                "'{}' must be 1–{MAX_ID_CHARS} lower-case letters, digits and hyphens",
+                crate::units::clip(&s.id)
+            ),
         ));
     }
     if s.cells.value == 0 || s.cells.value > 400 {
@@ -723,5 +741,41 @@ mod tests {
         assert!(store.get("agm").unwrap().spec.name.starts_with("Our AGM"));
         assert_eq!(store.notices().len(), 1);
         assert!(store.notices()[0].contains("overrides"));
+    }
+
+    #[test]
+    fn unreadable_files_say_where_and_what_was_expected() {
+        let e = Profile::from_toml(" \n\n", "e.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(e.starts_with("e.toml:1: the file is empty"), "{e}");
+        let dir = tempfile::tempdir().unwrap();
+        let agm = include_str!("../../profiles/agm.toml");
+        // 0xE9 is é in Latin-1 (ISO/IEC 8859-1), invalid alone in UTF-8.
+        let mut latin1 = agm
+            .replacen("name = \"", "name = \"Caf\u{e9} ", 1)
+            .into_bytes();
+        let at = latin1.windows(2).position(|w| w == "é".as_bytes()).unwrap();
+        latin1.splice(at..at + 2, [0xE9]);
+        let path = dir.path().join("l1.toml");
+        std::fs::write(&path, latin1).unwrap();
+        let e = store::load_file(&path).unwrap_err().to_string();
+        assert!(e.contains("l1.toml:2: ") && e.contains("0xE9"), "{e}");
+        let long_id = agm.replacen(
+            "id = \"agm\"",
+            &format!("id = \"{}\"", "a".repeat(1 << 20)),
+            1,
+        );
+        let e = Profile::from_toml(&long_id, "long.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("1–64") && e.len() < 300, "{e}");
+        // A syntax error after multi-byte characters still finds its line.
+        let bad = format!("{agm}\n# ééé\nname = \"twice\"\n");
+        let e = Profile::from_toml(&bad, "dup.toml")
+            .unwrap_err()
+            .to_string();
+        let line = bad.lines().count();
+        assert!(e.starts_with(&format!("dup.toml:{line}:")), "{e}");
     }
 }
