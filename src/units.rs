@@ -158,6 +158,67 @@ pub enum UnitError {
     BadMeter(String),
 }
 
+/// A typed value as quoted in a message: trimmed, and cut to 40 characters
+/// so that a runaway field (a file without line ends) cannot flood the terminal.
+pub fn clip(raw: &str) -> String {
+    const MAX_CHARS: usize = 40;
+    let t = raw.trim();
+    match t.char_indices().nth(MAX_CHARS) {
+        Some((i, _)) => format!("{}… ({} bytes)", &t[..i], t.len()),
+        None => t.to_string(),
+    }
+}
+
+/// Text that is not UTF-8: where the first bad byte is and what it suggests.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{what}")]
+pub struct NotUtf8 {
+    /// 1-based line of the first byte that is not UTF-8.
+    pub line: u64,
+    /// What was found, with a guess at the encoding.
+    pub what: String,
+}
+
+/// The bytes of a text file as UTF-8, without a leading byte-order mark.
+/// UTF-16 (byte-order mark or NUL bytes) and Latin-1 / Windows-1252 bytes are
+/// refused rather than guessed, naming the line of the first bad byte.
+pub fn utf8_text(bytes: &[u8]) -> Result<&str, NotUtf8> {
+    let utf16 = |what: &str| NotUtf8 {
+        line: 1,
+        what: what.to_string(),
+    };
+    if bytes.starts_with(&[0xFF, 0xFE]) {
+        return Err(utf16(
+            "the file is UTF-16 (little-endian byte-order mark), not UTF-8",
+        ));
+    }
+    if bytes.starts_with(&[0xFE, 0xFF]) {
+        return Err(utf16(
+            "the file is UTF-16 (big-endian byte-order mark), not UTF-8",
+        ));
+    }
+    let body = bytes.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(bytes);
+    let line_of = |at: usize| body[..at].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
+    if let Some(at) = body.iter().position(|&b| b == 0) {
+        return Err(NotUtf8 {
+            line: line_of(at),
+            what:
+                "the file contains NUL bytes: it is UTF-16 without a byte-order mark, or not text"
+                    .into(),
+        });
+    }
+    std::str::from_utf8(body).map_err(|e| {
+        let at = e.valid_up_to();
+        let byte = body.get(at).copied().unwrap_or(0);
+        NotUtf8 {
+            line: line_of(at),
+            what: format!(
+                "the text is not valid UTF-8: byte 0x{byte:02X} (it looks like Latin-1 or Windows-1252, e.g. an accented letter or a degree sign)"
+            ),
+        }
+    })
+}
+
 /// Read a decimal number, accepting a decimal comma (`12,41`) as field data
 /// from spreadsheets often has, and the Unicode minus sign.
 pub fn parse_decimal(raw: &str, expected: &str) -> Result<f64, UnitError> {
@@ -169,7 +230,7 @@ pub fn parse_decimal(raw: &str, expected: &str) -> Result<f64, UnitError> {
         text.clone()
     };
     let bad = || UnitError::BadNumber {
-        value: raw.trim().to_string(),
+        value: clip(raw),
         expected: expected.to_string(),
     };
     // Rust accepts "inf", "NaN" and "infinity": field data never means those.
@@ -197,19 +258,19 @@ pub fn parse_temperature(raw: &str) -> Result<Celsius, UnitError> {
         Some((i, c)) if c.is_ascii_alphabetic() => (&text[..i], c.to_ascii_uppercase()),
         Some(_) => {
             return if parse_decimal(text, "a temperature").is_ok() {
-                Err(UnitError::TemperatureWithoutUnit(raw.trim().to_string()))
+                Err(UnitError::TemperatureWithoutUnit(clip(raw)))
             } else {
-                Err(UnitError::BadTemperature(raw.trim().to_string()))
+                Err(UnitError::BadTemperature(clip(raw)))
             }
         }
-        None => return Err(UnitError::BadTemperature(raw.to_string())),
+        None => return Err(UnitError::BadTemperature(clip(raw))),
     };
     let value = parse_decimal(number.trim(), "a temperature")
-        .map_err(|_| UnitError::BadTemperature(raw.trim().to_string()))?;
+        .map_err(|_| UnitError::BadTemperature(clip(raw)))?;
     match unit {
         'C' => Ok(Celsius(value)),
         'F' => Ok(Celsius::from_fahrenheit(value)),
-        _ => Err(UnitError::BadTemperature(raw.trim().to_string())),
+        _ => Err(UnitError::BadTemperature(clip(raw))),
     }
 }
 
@@ -221,9 +282,9 @@ pub fn parse_duration(raw: &str) -> Result<Option<Hours>, UnitError> {
         return Ok(None);
     }
     if text.starts_with('-') || text.starts_with('\u{2212}') {
-        return Err(UnitError::NegativeDuration(raw.trim().to_string()));
+        return Err(UnitError::NegativeDuration(clip(raw)));
     }
-    let bad = || UnitError::BadDuration(raw.trim().to_string());
+    let bad = || UnitError::BadDuration(clip(raw));
     let mut total_hours = 0.0;
     let mut number = String::new();
     let mut chars = text.chars().peekable();
@@ -312,7 +373,7 @@ impl fmt::Display for MeterAccuracy {
 /// Parse `0.5%+2` (percent of reading plus counts); `0.5%` alone means no counts.
 pub fn parse_meter(raw: &str) -> Result<MeterAccuracy, UnitError> {
     let text: String = raw.chars().filter(|c| !c.is_whitespace()).collect();
-    let bad = || UnitError::BadMeter(raw.trim().to_string());
+    let bad = || UnitError::BadMeter(clip(raw));
     let (pct, counts) = match text.split_once('%') {
         Some((p, rest)) => {
             let rest = rest.trim_start_matches('+');
@@ -379,6 +440,25 @@ mod tests {
         assert!(parse_decimal("inf", "volts").is_err());
         assert!(parse_decimal("1,234,5", "volts").is_err());
         assert!(parse_decimal("", "volts").is_err());
+    }
+
+    #[test]
+    fn clipped_values_and_text_encodings() {
+        assert_eq!(clip("  12.4 "), "12.4");
+        let long = "9".repeat(10_000_000);
+        let c = clip(&long);
+        assert!(c.len() < 100 && c.contains("10000000 bytes"), "{c}");
+        assert!(parse_decimal(&long, "volts").unwrap_err().to_string().len() < 200);
+        // A UTF-8 byte-order mark is EF BB BF (The Unicode Standard, §23.8); it is dropped.
+        assert_eq!(utf8_text(b"\xEF\xBB\xBFa,b\n").unwrap(), "a,b\n");
+        // FF FE starts little-endian UTF-16 (The Unicode Standard, §23.8).
+        let e = utf8_text(b"\xFF\xFEa\x00").unwrap_err();
+        assert!(e.line == 1 && e.what.contains("UTF-16"), "{e:?}");
+        let e = utf8_text(b"a,b\n1,2\n\x00").unwrap_err();
+        assert!(e.line == 3 && e.what.contains("NUL"), "{e:?}");
+        // 0xE9 is é in Latin-1 (ISO/IEC 8859-1) and never a whole character in UTF-8.
+        let e = utf8_text(b"a,b\ncaf\xE9,1\n").unwrap_err();
+        assert!(e.line == 2 && e.what.contains("0xE9"), "{e:?}");
     }
 
     #[test]

@@ -51,6 +51,10 @@ fn injected_faults_are_flagged_with_the_expected_action() {
         ("CH-A2", "peer-outlier", "recharge-now"),
         ("TD-V03", "freeze-risk", "recharge-now"),
         ("CH-A4", "ohmic-rise", "capacity-test"),
+        // On float: below the AGM window and 0.070 V per cell under its
+        // string (FIST 3-6 §1.2C, 0.04 V, published); AGM is not equalized.
+        ("HL-B3", "float-low", "capacity-test"),
+        ("HL-B3", "float-deviation", "capacity-test"),
     ] {
         let u = unit(&v, id);
         assert!(flags(u).contains(&flag.to_string()), "{id}: {:?}", flags(u));
@@ -76,6 +80,25 @@ fn healthy_units_raise_nothing() {
         assert_eq!(u["action"], "serviceable", "{id}");
         assert!(flags(u).is_empty(), "{id}: {:?}", flags(u));
     }
+}
+
+#[test]
+fn the_float_string_counts_its_units_by_their_float_action() {
+    let (v, _) = fleet_json();
+    // demo-data/README.md: HL-B3 sinks on float, its three neighbours are
+    // within the window, and the current holds steady.
+    for id in ["HL-B1", "HL-B2", "HL-B4"] {
+        let u = unit(&v, id);
+        assert_eq!(u["action"], "serviceable", "{id}");
+        assert_eq!(flags(u), ["on-float"], "{id}");
+    }
+    for id in ["HL-B1", "HL-B2", "HL-B3", "HL-B4"] {
+        assert!(unit(&v, id)["soc_percent"].is_null(), "{id}");
+    }
+    assert_eq!(
+        v["summary"]["by_site"]["Hollin Lane exchange"],
+        serde_json::json!({"capacity-test": 1, "serviceable": 3})
+    );
 }
 
 #[test]

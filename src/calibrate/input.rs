@@ -3,15 +3,19 @@
 //! Columns (header names case-insensitive, in any order; other columns are
 //! ignored so that a unit id or a date may stay in the sheet):
 //! - `soc_percent`: the known state of charge, 0–100 (required);
-//! - `volts`: rested voltage across the unit, **or** `sg`: mean specific
-//!   gravity of its cells as read on the hydrometer at the acid temperature;
+//! - `volts`: rested voltage across the unit, **or** `sg`: the hydrometer
+//!   reading at the acid temperature, one mean value or one value per cell
+//!   separated by `;` (as many as the unit has cells; averaged);
 //! - `temp_c` or `temp_f`: the temperature of the unit / the acid (the column
 //!   names the unit, so the values are bare numbers);
 //! - `cells`: cells in series (optional; default the base profile's).
 //!
 //! The delimiter is `;` or a tab when the header line holds one, else `,`.
-//! A decimal comma is accepted (`12,41`; quote it in a comma-separated file).
-//! Lines starting with `#` are comments.
+//! A decimal comma is accepted (`12,41`; quote it in a comma-separated file,
+//! and quote a per-cell SG list in a semicolon-separated one). Every line must
+//! have as many fields as the header. Lines starting with `#` are comments.
+//! The text must be UTF-8 (a byte-order mark is allowed); UTF-16 and Latin-1
+//! are refused with the line of the first bad byte rather than guessed.
 
 use super::CalibrateError;
 use crate::electrolyte::{
@@ -55,17 +59,30 @@ pub fn read_points<R: Read>(
     mut reader: R,
     base: &Profile,
 ) -> Result<Vec<CalibrationPoint>, CalibrateError> {
-    let mut text = String::new();
+    let mut bytes = Vec::new();
     reader
-        .read_to_string(&mut text)
+        .read_to_end(&mut bytes)
         .map_err(|e| CalibrateError::Io {
             file: name.to_string(),
-            message: format!("{e} (expected UTF-8 CSV text)"),
+            message: e.to_string(),
         })?;
-    let header_line = text
+    let text = crate::units::utf8_text(&bytes).map_err(|e| CalibrateError::Csv {
+        file: name.to_string(),
+        line: e.line,
+        message: format!("{e}; re-save the file as UTF-8 (in a spreadsheet: CSV UTF-8)"),
+    })?;
+    let Some((header_no, header_line)) = text
         .lines()
-        .find(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
-        .unwrap_or("");
+        .enumerate()
+        .find(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+    else {
+        return Err(CalibrateError::Header {
+            file: name.to_string(),
+            line: 1,
+            message: "the file is empty: expected a header such as soc_percent,volts,temp_c and one line per point".into(),
+        });
+    };
+    let header_no = header_no as u64 + 1;
     let delimiter = crate::units::detect_delimiter(header_line.as_bytes());
     let mut csv = csv::ReaderBuilder::new()
         .delimiter(delimiter)
@@ -79,13 +96,35 @@ pub fn read_points<R: Read>(
         .iter()
         .map(|h| h.trim().to_ascii_lowercase())
         .collect::<Vec<_>>();
-    let cols = find_columns(name, &headers)?;
+    let cols = find_columns(name, header_no, &headers)?;
     let mut points = Vec::new();
+    let mut lines = LineCounter::default();
     for record in csv.records() {
         let record = record.map_err(|e| csv_error(name, &e))?;
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
+        let start = record
+            .position()
+            .map_or(0, |p| usize::try_from(p.byte()).unwrap_or(usize::MAX));
+        let line = lines.record_line(text, start);
         if record.iter().all(|f| f.is_empty()) {
             continue;
+        }
+        if record.len() != headers.len() {
+            let quoting = if delimiter == b';' {
+                " (in a semicolon-separated file, quote a per-cell SG list: \"1,265;1,270\")"
+            } else if delimiter == b',' {
+                " (in a comma-separated file, quote a decimal comma: \"12,41\")"
+            } else {
+                ""
+            };
+            return Err(CalibrateError::Csv {
+                file: name.to_string(),
+                line,
+                message: format!(
+                    "{} fields, but the header has {}: expected one value per column{quoting}",
+                    record.len(),
+                    headers.len()
+                ),
+            });
         }
         let field = |i: Option<usize>| i.and_then(|i| record.get(i)).filter(|s| !s.is_empty());
         points.push(read_row(name, line, &cols, field, base)?);
@@ -98,6 +137,41 @@ pub fn read_points<R: Read>(
     Ok(points)
 }
 
+/// Lines of records, counted from their bytes. The CSV reader's own line is
+/// where it started looking for a record: before the `\n` of a CRLF, blank
+/// lines and comment lines, so a CRLF file had every line one short.
+#[derive(Default)]
+struct LineCounter {
+    /// Bytes counted so far.
+    at: usize,
+    /// `\n` bytes before `at`.
+    newlines: u64,
+}
+
+impl LineCounter {
+    /// The 1-based line of the record the reader started looking for at byte `from`.
+    fn record_line(&mut self, text: &str, from: usize) -> u64 {
+        let b = text.as_bytes();
+        let mut i = from.min(b.len());
+        loop {
+            while i < b.len() && matches!(b[i], b'\r' | b'\n') {
+                i += 1;
+            }
+            if b.get(i) != Some(&b'#') {
+                break;
+            }
+            while i < b.len() && b[i] != b'\n' {
+                i += 1;
+            }
+        }
+        if i >= self.at {
+            self.newlines += b[self.at..i].iter().filter(|&&c| c == b'\n').count() as u64;
+            self.at = i;
+        }
+        self.newlines + 1
+    }
+}
+
 fn csv_error(name: &str, e: &csv::Error) -> CalibrateError {
     CalibrateError::Csv {
         file: name.to_string(),
@@ -106,7 +180,7 @@ fn csv_error(name: &str, e: &csv::Error) -> CalibrateError {
     }
 }
 
-fn find_columns(name: &str, headers: &[String]) -> Result<Columns, CalibrateError> {
+fn find_columns(name: &str, line: u64, headers: &[String]) -> Result<Columns, CalibrateError> {
     let find = |want: &str| -> Result<Option<usize>, CalibrateError> {
         let mut hits = headers
             .iter()
@@ -116,6 +190,7 @@ fn find_columns(name: &str, headers: &[String]) -> Result<Columns, CalibrateErro
         if hits.next().is_some() {
             return Err(CalibrateError::Header {
                 file: name.to_string(),
+                line,
                 message: format!("column `{want}` appears more than once"),
             });
         }
@@ -124,6 +199,7 @@ fn find_columns(name: &str, headers: &[String]) -> Result<Columns, CalibrateErro
     let cols = Columns {
         soc: find("soc_percent")?.ok_or_else(|| CalibrateError::Header {
             file: name.to_string(),
+            line,
             message: format!(
                 "no `soc_percent` column (found: {}); expected soc_percent, volts or sg, temp_c or temp_f, and optionally cells",
                 headers.join(", ")
@@ -138,16 +214,78 @@ fn find_columns(name: &str, headers: &[String]) -> Result<Columns, CalibrateErro
     if cols.volts.is_none() && cols.sg.is_none() {
         return Err(CalibrateError::Header {
             file: name.to_string(),
+            line,
             message: "no `volts` or `sg` column: each point needs a rested voltage or a hydrometer reading".into(),
         });
     }
     if cols.temp_c.is_none() && cols.temp_f.is_none() {
         return Err(CalibrateError::Header {
             file: name.to_string(),
+            line,
             message: "no `temp_c` or `temp_f` column: a reading cannot be referred to 25 °C without its temperature".into(),
         });
     }
     Ok(cols)
+}
+
+/// The `cells` field, or the base profile's count when it is empty.
+fn cells_or_base<'a>(
+    field: &impl Fn(Option<usize>) -> Option<&'a str>,
+    cols: &Columns,
+    base: &Profile,
+    err: &impl Fn(&str, String) -> CalibrateError,
+) -> Result<u32, CalibrateError> {
+    match field(cols.cells) {
+        None => Ok(base.cells()),
+        Some(raw) => {
+            let c = parse_decimal(raw, "a whole number of cells")
+                .map_err(|e| err("cells", e.to_string()))?;
+            if c.fract() != 0.0 || !(1.0..=400.0).contains(&c) {
+                return Err(err("cells", format!("{c}: expected a whole number 1–400")));
+            }
+            Ok(c as u32)
+        }
+    }
+}
+
+/// The mean of an `sg` field: one value, or one per cell separated by `;`.
+fn mean_sg(
+    raw: &str,
+    cells: u32,
+    err: &impl Fn(&str, String) -> CalibrateError,
+) -> Result<f64, CalibrateError> {
+    let parts: Vec<&str> = raw.split(';').map(str::trim).collect();
+    let mut values = Vec::with_capacity(parts.len());
+    for (k, part) in parts.iter().enumerate() {
+        let v = parse_decimal(part, "a specific gravity like 1.265").map_err(|e| {
+            let which = if parts.len() > 1 {
+                format!("value {}: ", k + 1)
+            } else {
+                String::new()
+            };
+            err("sg", format!("{which}{e}"))
+        })?;
+        if (1000.0..=1400.0).contains(&v) {
+            return Err(err(
+                "sg",
+                format!(
+                    "{v}: write specific gravity as a ratio ({:.3}), not in points",
+                    v / 1000.0
+                ),
+            ));
+        }
+        values.push(v);
+    }
+    if values.len() > 1 && values.len() != cells as usize {
+        return Err(err(
+            "sg",
+            format!(
+                "{} values for {cells} cells: give one per cell, or one mean value",
+                values.len()
+            ),
+        ));
+    }
+    Ok(values.iter().sum::<f64>() / values.len() as f64)
 }
 
 fn read_row<'a>(
@@ -202,15 +340,22 @@ fn read_row<'a>(
         }
     };
     if !(TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&t.0) {
-        let column = if field(cols.temp_c).is_some() {
-            "temp_c"
+        let in_celsius = field(cols.temp_c).is_some();
+        let column = if in_celsius { "temp_c" } else { "temp_f" };
+        let as_f = Celsius::from_fahrenheit(t.0).0;
+        // Not guessed: a °F value in the °C column is named, and refused.
+        let hint = if in_celsius && (TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&as_f) {
+            format!(
+                " ({} °C is implausible; as °F it would be {as_f:.1} °C: put °F values in a temp_f column)",
+                t.0
+            )
         } else {
-            "temp_f"
+            String::new()
         };
         return Err(err(
             column,
             format!(
-                "{:.1} °C is outside {TEMPERATURE_MIN_C}–{TEMPERATURE_MAX_C} °C",
+                "{:.1} °C is outside {TEMPERATURE_MIN_C}–{TEMPERATURE_MAX_C} °C{hint}",
                 t.0
             ),
         ));
@@ -232,16 +377,7 @@ fn read_row<'a>(
         }
         (Some(raw), None) => {
             let volts = number("volts", raw, "a voltage in volts")?;
-            let cells = match field(cols.cells) {
-                None => base.cells(),
-                Some(raw) => {
-                    let c = number("cells", raw, "a whole number of cells")?;
-                    if c.fract() != 0.0 || !(1.0..=400.0).contains(&c) {
-                        return Err(err("cells", format!("{c}: expected a whole number 1–400")));
-                    }
-                    c as u32
-                }
-            };
+            let cells = cells_or_base(&field, cols, base, &err)?;
             let per_cell = volts / f64::from(cells);
             let coef = base.ocv_coefficient(SocPercent(soc));
             let v25 = per_cell - coef.0 / 1000.0 * (t.0 - 25.0);
@@ -266,7 +402,7 @@ fn read_row<'a>(
                     ),
                 ));
             }
-            let sg = number("sg", raw, "a specific gravity like 1.265")?;
+            let sg = mean_sg(raw, cells_or_base(&field, cols, base, &err)?, &err)?;
             let sg25 = correct_to_25c(SpecificGravity(sg), t, HydrometerRule::default())
                 .map_err(|e| err("sg", e.to_string()))?
                 .value;

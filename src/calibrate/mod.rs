@@ -101,10 +101,12 @@ pub enum CalibrateError {
         message: String,
     },
     /// The header lacks a column or repeats one.
-    #[error("{file}:1: header: {message}")]
+    #[error("{file}:{line}: header: {message}")]
     Header {
         /// Input name.
         file: String,
+        /// 1-based line of the header (1 for an empty file).
+        line: u64,
         /// What is missing and what is expected.
         message: String,
     },

@@ -430,3 +430,94 @@ fn thin_data_are_warned_about() {
     let w = cal.report.warnings.join("\n");
     assert!(!w.contains("only") && !w.contains("span only"), "{w}");
 }
+
+#[test]
+fn malformed_files_name_the_line_and_what_was_expected() {
+    let msg = |csv: &[u8]| {
+        read_points("t.csv", csv, &base("flooded-automotive"))
+            .unwrap_err()
+            .to_string()
+    };
+    let e = msg(b"");
+    assert!(e.starts_with("t.csv:1: header: the file is empty"), "{e}");
+    let e = msg(b"# fleet A\nsoc_percent,temp_c\n50,20\n");
+    assert!(e.starts_with("t.csv:2: header:"), "{e}");
+    // An unquoted per-cell list in a semicolon file would shift the columns.
+    let e = msg(b"soc_percent;sg;temp_c\n50;1,200;1,190;20\n");
+    assert!(
+        e.starts_with("t.csv:2: 4 fields, but the header has 3") && e.contains("quote"),
+        "{e}"
+    );
+    let e = msg(b"soc_percent,volts,temp_c\n50,12.2,25,9\n");
+    assert!(e.starts_with("t.csv:2: 4 fields"), "{e}");
+    // 77 °F is 25 °C, (77 − 32) × 5/9 (definition of the scales): named, not guessed.
+    let e = msg(b"soc_percent,volts,temp_c\n50,12.2,77\n");
+    assert!(
+        e.contains("`temp_c`") && e.contains("25.0 °C") && e.contains("temp_f"),
+        "{e}"
+    );
+    // 0xB0 is the degree sign in Latin-1 (ISO/IEC 8859-1).
+    let e = msg(b"soc_percent,volts,temp_c\n50,12.2,25\n60,12.3,25\xb0\n");
+    assert!(e.starts_with("t.csv:3: ") && e.contains("0xB0"), "{e}");
+    let e = msg(b"\xff\xfes\x00");
+    assert!(e.starts_with("t.csv:1: ") && e.contains("UTF-16"), "{e}");
+    let e = msg(b"soc_percent,sg,temp_c\n50,1.2;1.2;1.2,25\n");
+    assert!(
+        e.contains("`sg`") && e.contains("3 values for 6 cells"),
+        "{e}"
+    );
+    let e = msg(b"soc_percent,sg,temp_c\n50,1200,25\n");
+    assert!(e.contains("not in points"), "{e}");
+    let long = format!("soc_percent,volts,temp_c\n50,{},25\n", "1".repeat(1 << 20));
+    assert!(msg(long.as_bytes()).len() < 300);
+}
+
+#[test]
+fn a_per_cell_sg_list_is_averaged() {
+    let b = base("flooded-automotive");
+    let list = read_points(
+        "t.csv",
+        &b"soc_percent,sg,temp_c\n50,\"1.200;1.210;1.190;1.200;1.205;1.195\",25\n"[..],
+        &b,
+    )
+    .unwrap();
+    let mean = read_points("t.csv", &b"soc_percent,sg,temp_c\n50,1.200,25\n"[..], &b).unwrap();
+    // The six values average to 1.200 exactly (arithmetic).
+    assert!((list[0].volts_per_cell_25c.0 - mean[0].volts_per_cell_25c.0).abs() < 1e-12);
+    let two_cells = read_points(
+        "t.csv",
+        &b"soc_percent,sg,temp_c,cells\n50,1.19;1.21,25,2\n"[..],
+        &b,
+    )
+    .unwrap();
+    assert!((two_cells[0].volts_per_cell_25c.0 - mean[0].volts_per_cell_25c.0).abs() < 1e-12);
+}
+
+#[test]
+fn lines_are_counted_in_crlf_files_and_past_blank_and_comment_lines() {
+    let line_of_error = |csv: &str| {
+        let e = read_points("t.csv", csv.as_bytes(), &base("flooded-automotive"))
+            .unwrap_err()
+            .to_string();
+        e.split(':').nth(1).unwrap().parse::<u64>().unwrap()
+    };
+    assert_eq!(
+        line_of_error("soc_percent,volts,temp_c\r\n20,12.06,25\r\n50,abc,25\r\n"),
+        3
+    );
+    assert_eq!(
+        line_of_error("soc_percent,volts,temp_c\n\n\n# c\n50,abc,25\n"),
+        5
+    );
+    assert_eq!(
+        line_of_error("# a\r\n# b\r\nsoc_percent,volts,temp_c\r\n\r\n50,abc,25\r\n"),
+        5
+    );
+    let p = read_points(
+        "t.csv",
+        &b"soc_percent,volts,temp_c\r\n20,12.06,25\r\n\r\n50,12.25,25\r\n"[..],
+        &base("flooded-automotive"),
+    )
+    .unwrap();
+    assert_eq!(p.iter().map(|p| p.line).collect::<Vec<_>>(), [2, 4]);
+}

@@ -76,6 +76,7 @@ impl From<HydroArg> for HydrometerRule {
   restvolt check --volts 12.38 --temp -5C --rest 40m --after charge --meter 0.5%+2
   restvolt check --sg 1.265,1.262,1.268,1.200,1.264,1.266 --temp 50F --profile flooded-automotive
   restvolt check --volts 13.52 --float --profile agm --temp 24C --ambient 22C
+  restvolt check --volts 13.62 --float --profile agm --float-current 0.1 --capacity-ah 100
 
 Actions, most urgent first (the first that applies wins):
   replace        take the unit out of service and replace it
@@ -126,6 +127,37 @@ pub struct CheckArgs {
     /// Ambient temperature, for --float: 22C
     #[arg(long, value_name = "TEMP", allow_hyphen_values = true)]
     pub ambient: Option<String>,
+    /// The string's float current at this visit, in amperes, for --float: 0.10
+    #[arg(long, value_name = "A", requires = "float", allow_hyphen_values = true)]
+    pub float_current: Option<String>,
+    /// Rated capacity of the unit (and so of its string), in Ah, for --float: 100
+    #[arg(
+        long,
+        visible_alias = "capacity",
+        value_name = "AH",
+        requires = "float",
+        allow_hyphen_values = true
+    )]
+    pub capacity_ah: Option<String>,
+    /// The string's float current at the previous visit, in amperes (with --float-current)
+    #[arg(
+        long,
+        value_name = "A",
+        requires_all = ["float_current", "previous_volts", "previous_at"],
+        allow_hyphen_values = true
+    )]
+    pub previous_float_current: Option<String>,
+    /// Voltage read the same way (same unit, or whole string) at the previous visit
+    #[arg(
+        long,
+        value_name = "V",
+        requires = "previous_float_current",
+        allow_hyphen_values = true
+    )]
+    pub previous_volts: Option<String>,
+    /// When the previous visit was: 2026-09-15 09:30
+    #[arg(long, value_name = "TIME", requires = "previous_float_current")]
+    pub previous_at: Option<String>,
     /// Rules overrides (TOML, see `restvolt rules`)
     #[arg(long, value_name = "FILE")]
     pub rules: Option<PathBuf>,
@@ -182,6 +214,45 @@ fn opt_usage<T>(flag: &str, r: Result<T, units::UnitError>) -> Result<T, CliErro
     r.map_err(|e| CliError::usage(format!("{flag}: {e}")))
 }
 
+/// A temperature option (`--temp 25C`), within the range the electrolyte
+/// model accepts. A °C value that is implausible as °C but plausible as °F
+/// says so; it is not guessed.
+pub fn temperature_option(flag: &str, raw: &str) -> Result<Celsius, CliError> {
+    use crate::electrolyte::{TEMPERATURE_MAX_C, TEMPERATURE_MIN_C};
+    let t = opt_usage(flag, units::parse_temperature(raw))?;
+    if (TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&t.0) {
+        return Ok(t);
+    }
+    let as_f = Celsius::from_fahrenheit(t.0).0;
+    let hint = if raw.to_ascii_uppercase().trim_end().ends_with('C')
+        && (TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&as_f)
+    {
+        format!(
+            "; if that was °F, write {}F ({as_f:.1} °C)",
+            raw.trim()
+                .trim_end_matches(['C', 'c'])
+                .trim_end_matches('°')
+                .trim()
+        )
+    } else {
+        String::new()
+    };
+    Err(CliError::usage(format!(
+        "{flag}: temperature {} °C is outside the accepted range {TEMPERATURE_MIN_C} to {TEMPERATURE_MAX_C} °C{hint}",
+        (t.0 * 10.0).round() / 10.0
+    )))
+}
+
+/// A `--cells` option: 1–400 cells in series, as in a fleet file.
+pub fn cells_option(cells: Option<u32>) -> Result<Option<u32>, CliError> {
+    match cells {
+        Some(n) if !(1..=400).contains(&n) => Err(CliError::usage(format!(
+            "--cells: {n} is not a number of cells in series (expected 1–400, like 6 for a 12 V block)"
+        ))),
+        c => Ok(c),
+    }
+}
+
 /// The measurement setup from the arguments.
 pub fn setup_from(args: &CheckArgs) -> Result<Setup, CliError> {
     let mut setup = args.instrument.setup()?;
@@ -236,14 +307,24 @@ fn parse_sg_list(s: &str) -> Result<Vec<SpecificGravity>, CliError> {
 
 /// Run `restvolt check`.
 pub fn run(args: CheckArgs, store: &ProfileStore) -> CmdResult {
-    let profile = store.get(&args.profile).map_err(CliError::usage)?;
+    let profile = store
+        .get(&args.profile)
+        .map_err(|e| CliError::usage(format!("--profile: {e}")))?;
     let rules = load_rules(&args.rules)?;
     let setup = setup_from(&args)?;
     let temperature: Option<Celsius> = match &args.temp {
         None => None,
-        Some(s) => Some(opt_usage("--temp", units::parse_temperature(s))?),
+        Some(s) => Some(temperature_option("--temp", s)?),
     };
+    let cells = cells_option(args.cells)?;
     let rest: Option<Hours> = opt_usage("--rest", units::parse_duration(&args.rest))?;
+    if let Some(h) = rest.filter(|h| h.0 > crate::fleet::ingest::MAX_REST_HOURS) {
+        return Err(CliError::usage(format!(
+            "--rest: '{}' is {:.0} days, more than 10 years: expected the time since the last charge or discharge, like 40m, 6h or 2d (or unknown)",
+            units::clip(&args.rest),
+            h.0 / 24.0
+        )));
+    }
     let volts = args.volts.as_deref().map(parse_volts).transpose()?;
     let sg = args
         .sg
@@ -257,7 +338,7 @@ pub fn run(args: CheckArgs, store: &ProfileStore) -> CmdResult {
     let reading = Reading {
         volts,
         sg,
-        cells: args.cells,
+        cells,
         temperature,
         rest,
         after: args.after.into(),

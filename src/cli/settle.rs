@@ -2,10 +2,10 @@
 
 use super::check::{load_rules, OneFormat};
 use super::{output, CliError, CmdResult};
-use crate::correct::{assess, After, Reading, Setup};
+use crate::correct::{assess, After, Flag, FlagCode, Reading, Setup};
 use crate::profile::store::ProfileStore;
 use crate::settle::{self, RelaxationModel, RestAfter, SettleOptions};
-use crate::units::{self, Hours, Volts};
+use crate::units::{Hours, Volts};
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 use std::fmt::Write as _;
@@ -33,7 +33,12 @@ pub struct SettleArgs {
     /// CSV of readings during one rest (`-` for standard input)
     pub file: Option<PathBuf>,
     /// A hand-typed reading ELAPSED=VOLTS, e.g. 30m=12.93 (repeat)
-    #[arg(long = "reading", value_name = "ELAPSED=VOLTS")]
+    // Hyphen values reach the parser so `--reading -40m=12.8` gets its own message.
+    #[arg(
+        long = "reading",
+        value_name = "ELAPSED=VOLTS",
+        allow_hyphen_values = true
+    )]
     pub readings: Vec<String>,
     /// When the charge or discharge ended, for timestamped files: 2026-11-30 14:05
     #[arg(long, value_name = "TIME")]
@@ -80,6 +85,7 @@ struct SettleJson<'a> {
     temperature_celsius: f64,
     fits: &'a [settle::ModelFit],
     notes: &'a [String],
+    flags: &'a [Flag],
 }
 
 fn parse_time(s: &str) -> Result<chrono::NaiveDateTime, CliError> {
@@ -98,7 +104,9 @@ fn parse_time(s: &str) -> Result<chrono::NaiveDateTime, CliError> {
 
 /// Run `restvolt settle`.
 pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
-    let profile = store.get(&args.profile).map_err(CliError::usage)?;
+    let profile = store
+        .get(&args.profile)
+        .map_err(|e| CliError::usage(format!("--profile: {e}")))?;
     let rules = load_rules(&args.rules)?;
     let ended_at = args.ended_at.as_deref().map(parse_time).transpose()?;
     let mut readings = Vec::new();
@@ -126,9 +134,7 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
     }
     let setup: Setup = args.instrument.setup()?;
     let temperature = match &args.temp {
-        Some(s) => {
-            Some(units::parse_temperature(s).map_err(|e| CliError::usage(format!("--temp: {e}")))?)
-        }
+        Some(s) => Some(super::check::temperature_option("--temp", s)?),
         None => {
             let ts: Vec<f64> = readings
                 .iter()
@@ -147,9 +153,15 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
         target_rest: Hours(profile.preferred_rest_hours()),
         settling_limit_mv_per_h: profile.spec.rest.settling_limit_mv_per_h.value,
     };
-    let analysis = settle::analyse(&points, &opts).map_err(CliError::fail)?;
+    let analysis = settle::analyse(&points, &opts).map_err(|e| {
+        if e.is_input_error() {
+            CliError::usage(e)
+        } else {
+            CliError::fail(e)
+        }
+    })?;
     let fit = analysis.chosen_fit();
-    let cells = args.cells.unwrap_or(profile.cells());
+    let cells = super::check::cells_option(args.cells)?.unwrap_or(profile.cells());
     let at = |v: f64| {
         assess(
             profile,
@@ -167,6 +179,22 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
         .map_err(CliError::usage)
     };
     let mid = at(fit.rested_volts.0)?;
+    // A rested voltage that no cell count of this profile explains has no
+    // state of charge: refuse rather than print a confident one.
+    if let Some(f) = mid.flags.iter().find(|f| {
+        matches!(
+            f.code,
+            FlagCode::CheckConnection | FlagCode::WrongCellCount | FlagCode::SuspectShortedCell
+        )
+    }) {
+        return Err(CliError::fail(format!(
+            "rested voltage {:.3} V over {cells} cells (profile {}): {} ({}); no state of charge is given for it",
+            fit.rested_volts.0,
+            profile.id(),
+            f.detail,
+            f.code.as_str(),
+        )));
+    }
     let lo = at(fit.rested_interval_volts.0 .0)?;
     let hi = at(fit.rested_interval_volts.1 .0)?;
     let soc_interval = [lo.soc_interval_percent[0], hi.soc_interval_percent[1]];
@@ -199,6 +227,7 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
         temperature_celsius: mid.temperature_celsius,
         fits: &analysis.fits,
         notes: &analysis.notes,
+        flags: &mid.flags,
     };
     let text = match args.format {
         OneFormat::Json => serde_json::to_string_pretty(&doc).map_err(CliError::fail)? + "\n",
@@ -228,6 +257,9 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
             }
             for n in &analysis.notes {
                 let _ = writeln!(s, "  note: {n}");
+            }
+            for f in &mid.flags {
+                let _ = writeln!(s, "  flag {}: {}", f.code.as_str(), f.detail);
             }
             let what = match fit.model {
                 RelaxationModel::SemiLog => {

@@ -4,7 +4,7 @@ use super::check::{load_rules, CheckArgs, OneFormat};
 use super::{output, CliError, CmdResult};
 use crate::profile::Profile;
 use crate::rules::Rules;
-use crate::units::{AmpHours, Celsius, Volts};
+use crate::units::{AmpHours, Amperes, Celsius, Volts};
 use crate::ventilation::{self, CellType, ChargeMode, VentilationInput};
 use clap::{Args, ValueEnum};
 use std::fmt::Write as _;
@@ -180,7 +180,9 @@ pub fn completions(a: CompletionsArgs, cmd: &mut clap::Command) -> CmdResult {
 
 /// `check --float`: one unit on float charge. The float voltage is judged
 /// against the temperature-compensated window; it is never turned into a
-/// state of charge.
+/// state of charge. With `--float-current` (and `--capacity-ah`, and the
+/// previous visit's current) the string-current checks of the fleet report
+/// are made too: the rising-current rule and "fully charged on float".
 pub fn check_float(
     args: &CheckArgs,
     profile: &Profile,
@@ -194,33 +196,107 @@ pub fn check_float(
     let ambient = args
         .ambient
         .as_deref()
-        .map(crate::units::parse_temperature)
-        .transpose()
-        .map_err(|e| CliError::usage(format!("--ambient: {e}")))?;
+        .map(|s| super::check::temperature_option("--ambient", s))
+        .transpose()?;
+    let number = |flag: &str, text: &Option<String>, expected: &str| {
+        text.as_deref()
+            .map(|t| {
+                crate::units::parse_decimal(t, expected)
+                    .map_err(|e| CliError::usage(format!("{flag}: {e}")))
+            })
+            .transpose()
+    };
+    let float_current = number(
+        "--float-current",
+        &args.float_current,
+        "a current in amperes, like 0.10",
+    )?
+    .map(Amperes);
+    let capacity = number(
+        "--capacity-ah",
+        &args.capacity_ah,
+        "a rated capacity in Ah, like 100",
+    )?
+    .map(AmpHours);
+    let previous = match (
+        number(
+            "--previous-float-current",
+            &args.previous_float_current,
+            "a current in amperes, like 0.10",
+        )?,
+        number(
+            "--previous-volts",
+            &args.previous_volts,
+            "a voltage like 54.48",
+        )?,
+        args.previous_at.as_deref(),
+    ) {
+        (Some(i), Some(v), Some(at)) => {
+            let at = crate::fleet::ingest::parse_timestamp(at).ok_or_else(|| {
+                CliError::usage(format!(
+                    "--previous-at: '{at}' is not a time (expected YYYY-MM-DD HH:MM, or RFC 3339)"
+                ))
+            })?;
+            vec![(at, Amperes(i), Volts(v))]
+        }
+        // clap requires all three together.
+        _ => Vec::new(),
+    };
     let reading = crate::float::FloatReading {
         unit_id: "unit".into(),
         string: None,
         position: None,
         taken_at: None,
         volts,
-        cells: args.cells.unwrap_or(profile.cells()),
+        cells: super::check::cells_option(args.cells)?.unwrap_or(profile.cells()),
         temperature,
         ambient,
-        float_current: None,
-        capacity: None,
+        float_current,
+        capacity,
     };
-    let c = crate::float::check_unit(profile, &reading, rules).map_err(CliError::usage)?;
+    let with_current = float_current.is_some() || capacity.is_some();
+    let (c, current) = if with_current {
+        let a = crate::float::analyse_string(profile, "unit", &[reading], &previous, rules)
+            .map_err(CliError::usage)?;
+        (one_unit_verdict(&a)?, Some(a))
+    } else {
+        (
+            crate::float::check_unit(profile, &reading, rules).map_err(CliError::usage)?,
+            None,
+        )
+    };
     let text = match args.format {
         OneFormat::Json => {
             let mut v = serde_json::to_value(&c).map_err(CliError::fail)?;
             if let Some(o) = v.as_object_mut() {
                 o.insert("schema".into(), "restvolt.check-float/1".into());
+                if let Some(a) = &current {
+                    o.insert(
+                        "float_current_amperes".into(),
+                        a.float_current_amperes.into(),
+                    );
+                    o.insert(
+                        "expected_current_amperes".into(),
+                        a.expected_current_amperes.into(),
+                    );
+                    o.insert(
+                        "fully_charged_on_float".into(),
+                        a.fully_charged_on_float.into(),
+                    );
+                    o.insert("state_of_charge_note".into(), one_unit_note(a).into());
+                }
             }
             serde_json::to_string_pretty(&v).map_err(CliError::fail)? + "\n"
         }
         OneFormat::Text => {
             let mut s = String::new();
-            let _ = writeln!(s, "{} on float ({} cells)", profile.spec.name, c.cells);
+            let _ = writeln!(
+                s,
+                "{} on float ({} cell{})",
+                profile.spec.name,
+                c.cells,
+                if c.cells == 1 { "" } else { "s" }
+            );
             let _ = writeln!(
                 s,
                 "Float   {:.3} V/cell; window {:.3}–{:.3} V/cell at {:.1} °C",
@@ -229,10 +305,27 @@ pub fn check_float(
                 c.window_volts_per_cell[1],
                 c.compensation_celsius
             );
-            let _ = writeln!(
-                s,
-                "State of charge cannot be read from a float voltage: rest the unit to measure it."
-            );
+            match &current {
+                Some(a) => {
+                    let _ = writeln!(s, "Current {}", crate::report::float_current_text(a));
+                    for (at, i, v) in &previous {
+                        let _ = writeln!(
+                            s,
+                            "        previous visit {} A at {:.2} V, {}",
+                            i.0,
+                            v.0,
+                            at.format("%Y-%m-%d %H:%M")
+                        );
+                    }
+                    let _ = writeln!(s, "{}", one_unit_note(a));
+                }
+                None => {
+                    let _ = writeln!(
+                        s,
+                        "State of charge cannot be read from a float voltage: rest the unit to measure it."
+                    );
+                }
+            }
             for f in &c.flags {
                 let _ = writeln!(s, "  {}: {}", f.code.as_str(), f.detail);
             }
@@ -260,6 +353,47 @@ pub fn check_float(
     };
     output::emit(None, text.as_bytes(), &[])?;
     Ok(0)
+}
+
+/// The verdict on one unit checked by hand with the string current: its own
+/// check, with the string-level flags and reasons (a rising current) folded
+/// in, as the fleet report does for a unit on float.
+fn one_unit_verdict(
+    a: &crate::float::StringFloatAnalysis,
+) -> Result<crate::float::UnitFloatCheck, CliError> {
+    let mut c = a
+        .per_unit
+        .first()
+        .cloned()
+        .ok_or_else(|| CliError::fail("the float check returned no unit"))?;
+    c.flags.extend(a.flags.iter().cloned());
+    c.reasons.extend(a.reasons_for_unit(&c.unit_id));
+    c.reasons.sort_by_key(|r| r.action);
+    if let Some(r) = c.reasons.first() {
+        c.action = r.action;
+    }
+    c.cautions = a.cautions.clone();
+    // The comparisons between the units of a string do not apply to one unit.
+    c.notes.extend(
+        a.notes
+            .iter()
+            .filter(|n| {
+                !n.starts_with("one unit only")
+                    && !n.starts_with("fewer than two unit temperatures")
+            })
+            .cloned(),
+    );
+    Ok(c)
+}
+
+/// The string analysis's state-of-charge note, worded for one unit.
+fn one_unit_note(a: &crate::float::StringFloatAnalysis) -> String {
+    let list = format!(
+        "take these units off float and rest-test them: {}.",
+        a.rest_test_units.join(", ")
+    );
+    a.state_of_charge_note
+        .replace(&list, "take the unit off float and rest-test it.")
 }
 
 /// Arguments of `restvolt calibrate`.
@@ -291,7 +425,9 @@ pub struct CalibrateArgs {
 /// Run `restvolt calibrate`.
 pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) -> CmdResult {
     use crate::calibrate::{calibrate, read_points, sha256_hex, CalibrateOptions};
-    let base = store.get(&a.from).map_err(CliError::usage)?;
+    let base = store
+        .get(&a.from)
+        .map_err(|e| CliError::usage(format!("--from: {e}")))?;
     let name = a.file.display().to_string();
     let bytes = std::fs::read(&a.file).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
     let points = read_points(&name, bytes.as_slice(), base).map_err(CliError::usage)?;
@@ -305,7 +441,10 @@ pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) 
         input_sha256: sha256_hex(&bytes),
         today: chrono::Local::now().date_naive(),
     };
-    let c = calibrate(&points, base, &opts).map_err(CliError::usage)?;
+    let c = calibrate(&points, base, &opts).map_err(|e| match e {
+        crate::calibrate::CalibrateError::BadId(_) => CliError::usage(format!("--id: {e}")),
+        e => CliError::usage(e),
+    })?;
     let toml = c.to_toml().map_err(CliError::fail)?;
     output::write_atomic(&a.output, toml.as_bytes(), std::slice::from_ref(&a.file))?;
     let text = match a.format {

@@ -602,7 +602,9 @@ fn combine(a: f64, ai: [f64; 2], b: f64, bi: [f64; 2]) -> (f64, [f64; 2]) {
     let ua = ((ai[1] - ai[0]) / 4.0).max(1e-6);
     let ub = ((bi[1] - bi[0]) / 4.0).max(1e-6);
     let (wa, wb) = (1.0 / ua.powi(2), 1.0 / ub.powi(2));
-    let m = (a * wa + b * wb) / (wa + wb);
+    // A weighted mean lies between its parts; the clamp undoes rounding, which
+    // made two estimates of 100 % combine to 100.00000000000001 %.
+    let m = ((a * wa + b * wb) / (wa + wb)).clamp(a.min(b), a.max(b));
     let u = (1.0 / (wa + wb)).sqrt();
     (
         m,

@@ -308,3 +308,25 @@ fn the_numbers_only_estimate_is_the_assessments_numbers() {
         }
     }
 }
+
+#[test]
+fn a_combined_estimate_at_full_charge_stays_within_0_to_100() {
+    // Found by tests/properties.rs: a full-charge voltage and SG on efb at
+    // 34.5 °C combined to 100.00000000000001 %, outside its own interval.
+    let p = profile("efb");
+    let r = Reading {
+        volts: Some(Volts(2.1701276971074814 * f64::from(p.cells()))),
+        sg: vec![SpecificGravity(1.2835256115544564)],
+        temperature: Some(Celsius(34.5187851844101)),
+        rest: None,
+        after: After::Charge,
+        ..Reading::default()
+    };
+    let a = run(&p, &r);
+    assert_eq!(a.soc_basis, "volts+sg");
+    let [lo, hi] = a.soc_interval_percent;
+    assert!(
+        0.0 <= lo && lo <= a.soc_percent && a.soc_percent <= hi && hi <= 100.0,
+        "{a:?}"
+    );
+}

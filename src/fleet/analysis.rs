@@ -64,28 +64,46 @@ pub struct PreparedRow {
 }
 
 impl FleetState {
-    /// Fold one accepted row in.
+    /// Fold one accepted row in (a row its profile cannot use is left out:
+    /// [`FleetState::ingest`] rejects those).
     pub fn add_row(&mut self, row: FleetRow, store: &ProfileStore, settings: &FleetSettings) {
-        self.add_prepared(FleetState::prepare(row, store, settings));
+        if let Ok(p) = FleetState::prepare(row, store, settings) {
+            self.add_prepared(p);
+        }
     }
 
     /// The part of folding a row in that does not touch the state (its
     /// state of charge, above all), so that it can run on another thread.
-    pub fn prepare(row: FleetRow, store: &ProfileStore, settings: &FleetSettings) -> PreparedRow {
+    /// A row the reader accepted but its profile cannot use comes back as a
+    /// reject.
+    pub fn prepare(
+        row: FleetRow,
+        store: &ProfileStore,
+        settings: &FleetSettings,
+    ) -> Result<PreparedRow, Rejected> {
         let (soc, rested, short) = match store.get(&row.profile) {
-            Ok(p) => row_soc(p, &row, settings),
+            Ok(p) => {
+                if let Some(reason) = unusable(p, &row) {
+                    return Err(Rejected {
+                        file: row.source.file.to_string(),
+                        line: row.source.line,
+                        reason,
+                    });
+                }
+                row_soc(p, &row, settings)
+            }
             Err(_) => (None, false, false),
         };
         let ageing = row
             .temperature
             .map(|t| ageing_factor(t, settings.rules.get(RuleId::LifeHalving)));
-        PreparedRow {
+        Ok(PreparedRow {
             row,
             soc,
             rested,
             short,
             ageing,
-        }
+        })
     }
 
     /// Fold in a row made ready by [`FleetState::prepare`].
@@ -107,14 +125,18 @@ impl FleetState {
         settings: &FleetSettings,
     ) -> Result<IngestStats, IngestError> {
         let mut rejects = Vec::new();
-        let stats = ingest(
+        let mut late = Vec::new();
+        let mut stats = ingest(
             name,
             reader,
             opts,
-            &mut |r| self.add_row(r, store, settings),
+            &mut |r| match FleetState::prepare(r, store, settings) {
+                Ok(p) => self.add_prepared(p),
+                Err(r) => late.push(r),
+            },
             &mut |r| rejects.push(r),
         )?;
-        self.record(rejects, &stats);
+        self.record(rejects, late, &mut stats);
         Ok(stats)
     }
 
@@ -134,22 +156,31 @@ impl FleetState {
         progress: &mut dyn FnMut(u64),
     ) -> Result<IngestStats, IngestError> {
         let mut rejects = Vec::new();
-        let stats = ingest_parallel(
+        let mut late = Vec::new();
+        let mut stats = ingest_parallel(
             name,
             reader,
             opts,
             how,
             &|row| FleetState::prepare(row, store, settings),
-            &mut |p| self.add_prepared(p),
+            &mut |p| match p {
+                Ok(p) => self.add_prepared(p),
+                Err(r) => late.push(r),
+            },
             &mut |r| rejects.push(r),
             progress,
         )?;
-        self.record(rejects, &stats);
+        self.record(rejects, late, &mut stats);
         Ok(stats)
     }
 
-    fn record(&mut self, rejects: Vec<Rejected>, stats: &IngestStats) {
-        for r in rejects {
+    /// Count an input in. `late` are rows the reader accepted but their
+    /// profile cannot use: they are rejects too, so that rows read =
+    /// accepted + rejected still holds.
+    fn record(&mut self, rejects: Vec<Rejected>, late: Vec<Rejected>, stats: &mut IngestStats) {
+        stats.rows_accepted -= late.len() as u64;
+        stats.rows_rejected += late.len() as u64;
+        for r in rejects.into_iter().chain(late) {
             self.add_rejected(r);
         }
         self.rows_read += stats.rows_read;
@@ -210,6 +241,30 @@ impl FleetState {
 fn first_rejected(rows: &mut Vec<Rejected>) {
     rows.sort_by(|a, b| (&a.file, a.line, &a.reason).cmp(&(&b.file, b.line, &b.reason)));
     rows.truncate(REJECTED_CAP);
+}
+
+/// Why a row the reader accepted cannot be assessed with its profile, in the
+/// reader's reject style (column, what is wrong, what is expected); `None`
+/// when it can. The reader knows profile ids, not their cell counts or types.
+fn unusable(p: &Profile, row: &FleetRow) -> Option<String> {
+    if row.sg.is_empty() {
+        return None;
+    }
+    if !p.hydrometer_usable() {
+        return Some(format!(
+            "column `sg`: profile '{}' is valve-regulated: its electrolyte cannot be sampled, so SG readings do not apply",
+            p.id()
+        ));
+    }
+    let cells = row.cells.unwrap_or(p.cells());
+    if row.sg.len() > 1 && row.sg.len() != cells as usize {
+        return Some(format!(
+            "column `sg`: {} values for {cells} cells (profile '{}'): give one per cell, or one mean value",
+            row.sg.len(),
+            p.id()
+        ));
+    }
+    None
 }
 
 /// Heat-ageing factor at a temperature: 2^((T − 25)/N) above 25 °C, 1 below.
@@ -478,7 +533,14 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
         }
     }
 
+    // A unit read on float takes its float check's flags and reasons (and
+    // the string's that concern it), so its action counts like any other.
+    let (float_strings, mut float_findings) = float_strings(state, store, rules);
     for j in &mut judged {
+        if let Some(f) = float_findings.remove(&j.report.unit_id) {
+            j.report.flags.extend(f.flags);
+            j.report.reasons.extend(f.reasons);
+        }
         j.report.reasons.sort_by_key(|r| r.action);
         j.report.action = j
             .report
@@ -547,7 +609,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
             profiles,
         },
         units,
-        float_strings: float_strings(state, store, rules),
+        float_strings,
         rejected: state.rejected_rows(),
         notices: state.notices.clone(),
     }
@@ -860,15 +922,24 @@ fn empty_report(
     }
 }
 
+/// What the float checks found for one unit whose latest reading is on float:
+/// the flags and reasons it takes into its own report.
+#[derive(Debug, Default)]
+struct UnitFloatFindings {
+    flags: Vec<String>,
+    reasons: Vec<FleetReason>,
+}
+
+/// Float strings, and every checked unit's findings by unit id.
+type FloatResults = (
+    Vec<crate::float::StringFloatAnalysis>,
+    BTreeMap<String, UnitFloatFindings>,
+);
+
 /// Group units whose latest reading is on float by (site, string, profile) and
-/// run the float checks on each group. Earlier float visits of the group's
-/// first unit give the string-current history (string voltage taken as that
-/// unit's voltage times the number of units).
-fn float_strings(
-    state: &FleetState,
-    store: &ProfileStore,
-    rules: &Rules,
-) -> Vec<crate::float::StringFloatAnalysis> {
+/// run the float checks on each group. Each unit's own check, and the string's
+/// reasons that concern it, go back to that unit (see [`UnitFloatFindings`]).
+fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> FloatResults {
     let mut groups: BTreeMap<(String, String, String), Vec<&UnitSummary>> = BTreeMap::new();
     for s in state.units.values() {
         let Some((_, r)) = s.latest() else { continue };
@@ -883,6 +954,7 @@ fn float_strings(
         groups.entry(key).or_default().push(s);
     }
     let mut out = Vec::new();
+    let mut findings: BTreeMap<String, UnitFloatFindings> = BTreeMap::new();
     for ((site, string, profile_id), members) in groups {
         let Ok(profile) = store.get(&profile_id) else {
             continue;
@@ -892,7 +964,8 @@ fn float_strings(
         } else {
             format!("{site} / {string}")
         };
-        let readings: Vec<crate::float::FloatReading> = members
+        let (capacity, capacity_note) = string_capacity(&members);
+        let mut readings: Vec<crate::float::FloatReading> = members
             .iter()
             .filter_map(|s| s.latest())
             .filter_map(|(_, r)| {
@@ -906,33 +979,186 @@ fn float_strings(
                     temperature: r.temperature,
                     ambient: r.ambient,
                     float_current: r.float_current,
-                    capacity: None,
+                    capacity,
                 })
             })
             .collect();
-        let n_units = readings.len() as f64;
-        let previous: Vec<_> = members
-            .first()
-            .map(|s| {
-                s.history
-                    .iter()
-                    .rev()
-                    .skip(1)
-                    .rev()
-                    .filter(|h| h.after == After::Float)
-                    .filter_map(|h| {
-                        Some((
-                            h.taken_at,
-                            h.float_current?,
-                            crate::units::Volts(h.volts?.0 * n_units),
-                        ))
-                    })
-                    .collect()
-            })
-            .unwrap_or_default();
-        if let Ok(a) = crate::float::analyse_string(profile, &name, &readings, &previous, rules) {
-            out.push(a);
+        let (previous, mut notes) = earlier_visits(&members);
+        notes.extend(capacity_note);
+
+        // A unit whose reading cannot be checked (a float voltage of 0 V or
+        // below, a negative current) is set aside with its own error, so the
+        // rest of the string is still checked.
+        let mut set_aside: Vec<String> = Vec::new();
+        let analysis = loop {
+            match crate::float::analyse_string(profile, &name, &readings, &previous, rules) {
+                Ok(a) => break Some(a),
+                Err(e) => {
+                    let bad = match &e {
+                        crate::float::FloatError::NotFinite { unit_id, .. }
+                        | crate::float::FloatError::OutOfRange { unit_id, .. }
+                        | crate::float::FloatError::NoCells { unit_id } => {
+                            readings.iter().position(|r| r.unit_id == *unit_id)
+                        }
+                        _ => None,
+                    };
+                    let unchecked: Vec<String> = match bad {
+                        Some(i) => vec![readings.remove(i).unit_id],
+                        None => readings.drain(..).map(|r| r.unit_id).collect(),
+                    };
+                    for id in unchecked {
+                        findings.insert(id.clone(), float_unchecked(&e));
+                        set_aside.push(id);
+                    }
+                    if readings.is_empty() {
+                        break None;
+                    }
+                }
+            }
+        };
+        let Some(mut a) = analysis else { continue };
+        a.notes.extend(notes);
+        if !set_aside.is_empty() {
+            set_aside_units(&mut a, &set_aside);
+        }
+        for c in &a.per_unit {
+            let mut reasons: Vec<FleetReason> = c.reasons.iter().map(FleetReason::from).collect();
+            reasons.extend(a.reasons_for_unit(&c.unit_id).iter().map(|r| {
+                let mut f = FleetReason::from(r);
+                f.detail = format!("string {}: {}", a.string, f.detail);
+                f
+            }));
+            findings.insert(
+                c.unit_id.clone(),
+                UnitFloatFindings {
+                    flags: c
+                        .flags
+                        .iter()
+                        .map(|f| f.code.as_str().to_string())
+                        .collect(),
+                    reasons,
+                },
+            );
+        }
+        out.push(a);
+    }
+    (out, findings)
+}
+
+/// Say which units of a string were set aside, and withdraw "fully charged
+/// on float": a unit that could not be checked may be the one short of charge.
+fn set_aside_units(a: &mut crate::float::StringFloatAnalysis, ids: &[String]) {
+    let ids = ids.join(", ");
+    a.notes.push(format!(
+        "not checked: {ids} (see the unit list); the string's figures are of the other units"
+    ));
+    if a.fully_charged_on_float == Some(true) {
+        a.fully_charged_on_float = None;
+        a.state_of_charge_note = a.state_of_charge_note.replace(
+            "This string is fully charged on float: ",
+            &format!("Not shown fully charged, as {ids} could not be checked, though "),
+        );
+    }
+}
+
+/// The findings of a unit on float whose reading could not be checked.
+fn float_unchecked(e: &crate::float::FloatError) -> UnitFloatFindings {
+    UnitFloatFindings {
+        flags: vec!["float-unchecked".into()],
+        reasons: vec![FleetReason {
+            rule: "float-unchecked".into(),
+            action: Action::Remeasure,
+            detail: format!("the float check could not be made: {e}"),
+            source: "restvolt float checks".into(),
+        }],
+    }
+}
+
+/// The string's rated capacity: the value its units' rows give, when
+/// they agree. Rows that disagree give none, and a note saying so, rather
+/// than an expected float current from a guess.
+fn string_capacity(members: &[&UnitSummary]) -> (Option<crate::units::AmpHours>, Option<String>) {
+    let mut seen: Vec<f64> = members
+        .iter()
+        .flat_map(|s| s.capacities_ah.iter().copied())
+        .collect();
+    seen.sort_by(f64::total_cmp);
+    seen.dedup();
+    match seen.as_slice() {
+        [] => (None, None),
+        [one] => (Some(crate::units::AmpHours(*one)), None),
+        many => (
+            None,
+            Some(format!(
+                "the rows of this string give different capacities ({} Ah): no capacity is used, so the expected float current is unknown",
+                many.iter()
+                    .map(|c| c.to_string())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )),
+        ),
+    }
+}
+
+/// Earlier float visits of a string, as `(time, string float current, string
+/// voltage)`, with notes on the visits left out.
+///
+/// A visit is matched by its exact `taken_at`: the units of a string read at
+/// one round carry the round's time (as in the demo data). Its string voltage
+/// is the sum of its units' float voltages, so it is used only when every
+/// unit of the string was read then; its current is the median of the units'
+/// entries, as at the latest visit. Each unit's latest reading is the latest
+/// visit and is not repeated here.
+fn earlier_visits(
+    members: &[&UnitSummary],
+) -> (
+    Vec<(
+        chrono::NaiveDateTime,
+        crate::units::Amperes,
+        crate::units::Volts,
+    )>,
+    Vec<String>,
+) {
+    // time → (units read, summed volts, currents)
+    let mut visits: BTreeMap<chrono::NaiveDateTime, (usize, f64, Vec<f64>)> = BTreeMap::new();
+    for s in members {
+        let earlier = s.history.len().saturating_sub(1);
+        for h in s.history[..earlier]
+            .iter()
+            .filter(|h| h.after == After::Float)
+        {
+            let e = visits.entry(h.taken_at).or_default();
+            // 0 V or below is a lead off, not a share of the string voltage.
+            if let Some(v) = h.volts.filter(|v| v.0 > 0.0) {
+                e.0 += 1;
+                e.1 += v.0;
+            }
+            // A negative current is a discharge or a reversed clamp, not a float current.
+            if let Some(i) = h.float_current.filter(|i| i.0 >= 0.0) {
+                e.2.push(i.0);
+            }
         }
     }
-    out
+    let mut out = Vec::new();
+    let mut notes = Vec::new();
+    for (at, (n, volts, mut currents)) in visits {
+        if currents.is_empty() {
+            continue;
+        }
+        if n < members.len() {
+            notes.push(format!(
+                "the float visit of {} gave a float voltage for {n} of the string's {} units: its string voltage is unknown, so its float current is not compared",
+                at.format("%Y-%m-%d %H:%M"),
+                members.len()
+            ));
+            continue;
+        }
+        currents.sort_by(f64::total_cmp);
+        out.push((
+            at,
+            crate::units::Amperes(median_sorted(&currents)),
+            crate::units::Volts(volts),
+        ));
+    }
+    (out, notes)
 }

@@ -21,6 +21,7 @@
 //! | `ohmic_mohm`, `baseline_mohm` | no | measured internal ohmic value and its baseline |
 //! | `note` | no | free text |
 //! | `float_current_a`, `ambient_c` | no | for float readings |
+//! | `capacity_ah` | no | rated capacity of the unit (and so of its string), 0.5–20000 Ah; gives a float string its expected float current |
 //!
 //! The delimiter (comma, semicolon or tab) is detected from the header line
 //! unless given. A UTF-8 byte-order mark and CRLF line ends are accepted. A
@@ -73,8 +74,13 @@ pub const MAX_LINE_BYTES: u64 = 16 * 1024 * 1024;
 pub const MAX_REST_HOURS: f64 = 10.0 * 365.25 * 24.0;
 /// Unit voltages beyond ±this are not a lead-acid unit or string.
 pub const MAX_ABS_VOLTS: f64 = 1000.0;
-/// Plausible electrolyte/ambient temperature range, °C.
-pub const TEMPERATURE_RANGE_C: (f64, f64) = (-50.0, 80.0);
+/// Plausible electrolyte/ambient temperature range, °C: the range the
+/// electrolyte model accepts (as `check --temp`), so that a °F value in a °C
+/// column such as 77 is named, not read as 77 °C.
+pub const TEMPERATURE_RANGE_C: (f64, f64) = (
+    crate::electrolyte::TEMPERATURE_MIN_C,
+    crate::electrolyte::TEMPERATURE_MAX_C,
+);
 /// Plausible raw specific gravity range of sulfuric-acid electrolyte.
 pub const SG_RANGE: (f64, f64) = (1.0, 1.4);
 
@@ -160,6 +166,8 @@ pub struct FleetRow {
     pub float_current: Option<Amperes>,
     /// Ambient temperature, for float readings.
     pub ambient: Option<Celsius>,
+    /// Rated capacity of the unit (the string's, for units in series).
+    pub capacity: Option<crate::units::AmpHours>,
 }
 
 /// A record that was not accepted, and why.
@@ -358,9 +366,10 @@ enum Col {
     Note,
     FloatCurrent,
     Ambient,
+    Capacity,
 }
 
-const COLUMNS: [(Col, &str); 18] = [
+const COLUMNS: [(Col, &str); 19] = [
     (Col::UnitId, "unit_id"),
     (Col::TakenAt, "taken_at"),
     (Col::Profile, "profile"),
@@ -379,6 +388,7 @@ const COLUMNS: [(Col, &str); 18] = [
     (Col::Note, "note"),
     (Col::FloatCurrent, "float_current_a"),
     (Col::Ambient, "ambient_c"),
+    (Col::Capacity, "capacity_ah"),
 ];
 
 fn col_name(c: Col) -> &'static str {
@@ -1008,6 +1018,25 @@ impl RowParser<'_> {
                     None
                 }
             });
+        // Common practice: lead-acid units run from under 1 Ah (small sealed
+        // blocks) to a few thousand Ah (large stationary cells); outside
+        // this, the value is a typing error or in the wrong unit (mAh).
+        const CAPACITY_AH: (f64, f64) = (0.5, 20_000.0);
+        let capacity = self
+            .number(rec, Col::Capacity, "ampere-hours", problems)
+            .and_then(|c| {
+                let (lo, hi) = CAPACITY_AH;
+                if (lo..=hi).contains(&c) {
+                    Some(crate::units::AmpHours(c))
+                } else {
+                    problem(
+                        problems,
+                        Col::Capacity,
+                        format_args!("{c} Ah is not a plausible rated capacity (expected {lo} to {hi} Ah, the unit's C-rate capacity in Ah, not mAh)"),
+                    );
+                    None
+                }
+            });
 
         if !problems.is_empty() {
             return None;
@@ -1042,6 +1071,7 @@ impl RowParser<'_> {
             note: (!note.is_empty()).then(|| note.to_string()),
             float_current,
             ambient,
+            capacity,
         })
     }
 }
@@ -1935,6 +1965,40 @@ mod tests {
         assert_eq!(rows[1].source.line, 6);
         assert_eq!(stats.rows_read, 2);
         assert!(stats.notices.iter().any(|n| n.contains("skipped 1 record")));
+    }
+
+    #[test]
+    fn capacity_is_read_in_ah_and_implausible_values_name_the_column() {
+        let text = "unit_id,taken_at,volts,profile,after,capacity_ah\n\
+            U1,2024-03-01 08:30,2.27,agm,float,100\n\
+            U2,2024-03-01 08:30,2.27,agm,float,\n\
+            U3,2024-03-01 08:30,2.27,agm,float,100000\n\
+            U4,2024-03-01 08:30,2.27,agm,float,0\n\
+            U5,2024-03-01 08:30,2.27,agm,float,-7\n\
+            U6,2024-03-01 08:30,2.27,agm,float,lots\n";
+        let (rows, rej, _) = run(text).unwrap();
+        assert_eq!(rows.len(), 2, "{rej:?}");
+        assert_eq!(rows[0].capacity, Some(crate::units::AmpHours(100.0)));
+        // Empty means not given, not zero.
+        assert_eq!(rows[1].capacity, None);
+        let lines: Vec<u64> = rej.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [4, 5, 6, 7]);
+        // 100000 Ah is beyond the largest stationary lead-acid cells (a few
+        // thousand Ah, common practice): a typing error or mAh.
+        for r in &rej[..3] {
+            assert!(
+                r.reason.contains("column `capacity_ah`")
+                    && r.reason.contains("not a plausible rated capacity")
+                    && r.reason.contains("0.5 to 20000 Ah"),
+                "{r}"
+            );
+        }
+        assert!(
+            rej[3].reason.contains("column `capacity_ah`")
+                && rej[3].reason.contains("ampere-hours"),
+            "{}",
+            rej[3]
+        );
     }
 
     #[test]

@@ -18,6 +18,9 @@ use std::cmp::Ordering;
 /// Readings kept per unit for history rules (post-charge shortfall, days below threshold, duplicates).
 pub const HISTORY_CAP: usize = 12;
 
+/// Distinct rated capacities kept per unit: enough to show a disagreement.
+pub const CAPACITIES_KEPT: usize = 4;
+
 /// Fixed-point scale for state of charge sums: 0.001 %.
 const SOC_SCALE: f64 = 1000.0;
 /// Fixed-point scale for the heat-ageing factor sums.
@@ -105,6 +108,7 @@ fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
         .then_with(|| a.note.cmp(&b.note))
         .then_with(|| bits(a.float_current.map(|c| c.0)).cmp(&bits(b.float_current.map(|c| c.0))))
         .then_with(|| bits(a.ambient.map(|t| t.0)).cmp(&bits(b.ambient.map(|t| t.0))))
+        .then_with(|| bits(a.capacity.map(|c| c.0)).cmp(&bits(b.capacity.map(|c| c.0))))
 }
 
 /// Everything kept about one unit.
@@ -134,6 +138,9 @@ pub struct UnitSummary {
     pub first_ohmic: Option<(NaiveDateTime, u64)>,
     /// Earliest reading time.
     pub first_at: Option<NaiveDateTime>,
+    /// Rated capacities the rows give, Ah: the smallest [`CAPACITIES_KEPT`]
+    /// distinct values, ascending (more than one means the rows disagree).
+    pub capacities_ah: Vec<f64>,
     /// Readings with too little rest.
     pub short_rest: u64,
     /// The latest readings, oldest first, at most [`HISTORY_CAP`]; readings
@@ -141,6 +148,15 @@ pub struct UnitSummary {
     pub history: Vec<HistoryPoint>,
     /// The full row of the latest reading (the greatest by time, then content).
     pub latest_row: Option<FleetRow>,
+}
+
+/// Add capacities to a kept set: ascending, distinct, the smallest
+/// [`CAPACITIES_KEPT`] (a function of the set, so merging is order-free).
+fn add_capacities(kept: &mut Vec<f64>, more: &[f64]) {
+    kept.extend_from_slice(more);
+    kept.sort_by(f64::total_cmp);
+    kept.dedup();
+    kept.truncate(CAPACITIES_KEPT);
 }
 
 /// Minutes since 2000-01-01 00:00, the trend's time axis.
@@ -195,6 +211,9 @@ impl UnitSummary {
             });
         }
         self.first_at = Some(self.first_at.map_or(row.taken_at, |f| f.min(row.taken_at)));
+        if let Some(c) = row.capacity {
+            add_capacities(&mut self.capacities_ah, &[c.0]);
+        }
         let point = HistoryPoint {
             taken_at: row.taken_at,
             soc_milli_percent: soc_q,
@@ -271,6 +290,7 @@ impl UnitSummary {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
+        add_capacities(&mut self.capacities_ah, &other.capacities_ah);
         if let (Some(point), Some(row)) = (other.history.last(), other.latest_row) {
             let point = point.clone();
             self.offer_latest(&point, row);

@@ -94,6 +94,11 @@ pub struct FloatFlag {
     pub rule: &'static str,
     /// Where the rule's value comes from.
     pub source: String,
+    /// The units a string-level flag points at (the hottest and coldest for
+    /// `temp-spread`). Empty for a flag about the whole string, and for a
+    /// unit's own flag.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub units: Vec<String>,
 }
 
 /// Float readings that cannot be checked.

@@ -68,6 +68,25 @@ impl StringFloatAnalysis {
     pub fn has(&self, code: FloatFlagCode) -> bool {
         self.flags.iter().any(|f| f.code == code)
     }
+
+    /// The string-level reasons that concern one unit, most urgent first:
+    /// those of flags naming it (`temp-spread` names the hottest and the
+    /// coldest unit), and those of flags about the whole string, which every
+    /// unit shares (a rising float current calls for every unit's temperature).
+    /// Empty for a unit that is not in the string.
+    pub fn reasons_for_unit(&self, unit_id: &str) -> Vec<Reason> {
+        if !self.per_unit.iter().any(|c| c.unit_id == unit_id) {
+            return Vec::new();
+        }
+        let mut out: Vec<Reason> = self
+            .flags
+            .iter()
+            .filter(|f| f.units.is_empty() || f.units.iter().any(|u| u == unit_id))
+            .map(string_reason)
+            .collect();
+        out.sort_by_key(|r| r.action);
+        out
+    }
 }
 
 /// One visit's string current and voltage.
@@ -209,6 +228,7 @@ pub fn analyse_string(
                     ),
                     rule: RuleId::FloatDeviation.id(),
                     source: rules.source(RuleId::FloatDeviation),
+                    units: Vec::new(),
                 });
                 decide(profile, c);
             }
@@ -241,6 +261,7 @@ pub fn analyse_string(
                 ),
                 rule: RuleId::TempSpread.id(),
                 source: rules.source(RuleId::TempSpread),
+                units: vec![hot.0.to_string(), cold.0.to_string()],
             });
         }
         Some(spread)
@@ -413,30 +434,7 @@ pub fn analyse_string(
         }
     }
 
-    let mut reasons: Vec<Reason> = flags
-        .iter()
-        .map(|flag| match flag.code {
-            // At string level no unit is identified yet: finding it comes first.
-            FloatFlagCode::ThermalRunawayRisk => Reason {
-                action: Action::Remeasure,
-                rule: flag.code.as_str().into(),
-                detail: format!(
-                    "{}: measure every unit's temperature to find the one heating; take the string off charge if that is safe",
-                    flag.detail
-                ),
-                source: flag.source.clone(),
-            },
-            _ => Reason {
-                action: Action::Remeasure,
-                rule: flag.code.as_str().into(),
-                detail: format!(
-                    "{}: find the cause (ventilation, heat source, a failing unit)",
-                    flag.detail
-                ),
-                source: flag.source.clone(),
-            },
-        })
-        .collect();
+    let mut reasons: Vec<Reason> = flags.iter().map(string_reason).collect();
     reasons.sort_by_key(|r| r.action);
     let action = reasons
         .first()
@@ -475,6 +473,31 @@ pub fn analyse_string(
         state_of_charge_note,
         notes,
     })
+}
+
+/// The reason a string-level flag gives.
+fn string_reason(flag: &FloatFlag) -> Reason {
+    match flag.code {
+        // At string level no unit is identified yet: finding it comes first.
+        FloatFlagCode::ThermalRunawayRisk => Reason {
+            action: Action::Remeasure,
+            rule: flag.code.as_str().into(),
+            detail: format!(
+                "{}: measure every unit's temperature to find the one heating; take the string off charge if that is safe",
+                flag.detail
+            ),
+            source: flag.source.clone(),
+        },
+        _ => Reason {
+            action: Action::Remeasure,
+            rule: flag.code.as_str().into(),
+            detail: format!(
+                "{}: find the cause (ventilation, heat source, a failing unit)",
+                flag.detail
+            ),
+            source: flag.source.clone(),
+        },
+    }
 }
 
 /// The rising-current rule: the latest visit's current against the visit
@@ -536,5 +559,6 @@ fn rising_current(visits: &[Visit], rules: &Rules, notes: &mut Vec<String>) -> O
         ),
         rule: RuleId::FloatCurrentRise.id(),
         source: rules.source(RuleId::FloatCurrentRise),
+        units: Vec::new(),
     })
 }

@@ -262,6 +262,53 @@ fn string_fixture_raises_exactly_the_expected_flags() {
 }
 
 #[test]
+fn string_reasons_reach_the_units_they_name_and_whole_string_ones_every_unit() {
+    let p = profile("agm");
+    let previous = [
+        (at(1), Amperes(0.10), Volts(326.3)),
+        (at(10), Amperes(0.11), Volts(326.5)),
+    ];
+    let a = analyse_string(&p, "north", &agm_string(), &previous, &Rules::default()).unwrap();
+    // The spread runs from the first coolest unit, B04 at 22.5 °C, to B15 at
+    // 35.0 °C (the fixture's temperatures); the detail names the same two.
+    let spread = a
+        .flags
+        .iter()
+        .find(|f| f.code == FloatFlagCode::TempSpread)
+        .unwrap();
+    assert_eq!(spread.units, ["B15", "B04"]);
+    assert!(spread.detail.contains("at B04") && spread.detail.contains("at B15"));
+    // The rising current names no unit: it concerns the whole string.
+    let rise = a
+        .flags
+        .iter()
+        .find(|f| f.code == FloatFlagCode::ThermalRunawayRisk)
+        .unwrap();
+    assert!(rise.units.is_empty());
+
+    let rules_of = |id: &str| -> Vec<String> {
+        a.reasons_for_unit(id)
+            .into_iter()
+            .map(|r| r.rule)
+            .collect::<Vec<_>>()
+    };
+    assert_eq!(rules_of("B15"), ["temp-spread", "thermal-runaway-risk"]);
+    assert_eq!(rules_of("B04"), ["temp-spread", "thermal-runaway-risk"]);
+    assert_eq!(rules_of("B02"), ["thermal-runaway-risk"]);
+    assert!(rules_of("not-in-the-string").is_empty());
+    for r in a.reasons_for_unit("B02") {
+        assert_eq!(r.action, Action::Remeasure);
+        assert!(r.source.contains("VRLA makers' manuals"), "{}", r.source);
+    }
+    // A steady current and a narrow spread leave nothing for any unit.
+    let mut calm = agm_string();
+    calm.retain(|r| r.unit_id != "B15");
+    let a = analyse_string(&p, "north", &calm, &[], &Rules::default()).unwrap();
+    assert!(a.flags.is_empty());
+    assert!(a.reasons_for_unit("B02").is_empty());
+}
+
+#[test]
 fn rules_table_values_are_the_thresholds() {
     // Raising float-deviation to 0.1 V/cell by override removes the deviation flag
     // (the 0.066 V/cell shortfall is then inside it): the table governs, not a literal.

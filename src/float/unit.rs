@@ -208,6 +208,7 @@ pub(super) fn check_with_ambient(
             ),
             rule: "float-minimum",
             source: f.minimum_volts_per_cell.source.clone(),
+            units: Vec::new(),
         });
     } else if vpc < lo.0 {
         flags.push(FloatFlag {
@@ -218,6 +219,7 @@ pub(super) fn check_with_ambient(
             ),
             rule: "float-window",
             source: f.window_low_volts_per_cell.source.clone(),
+            units: Vec::new(),
         });
     } else if vpc > hi.0 {
         flags.push(FloatFlag {
@@ -228,6 +230,7 @@ pub(super) fn check_with_ambient(
             ),
             rule: "float-window",
             source: f.window_high_volts_per_cell.source.clone(),
+            units: Vec::new(),
         });
     }
 
@@ -245,6 +248,7 @@ pub(super) fn check_with_ambient(
                         ),
                         rule: RuleId::VrlaOverAmbient.id(),
                         source: rules.source(RuleId::VrlaOverAmbient),
+                        units: Vec::new(),
                     });
                 }
             }

@@ -102,6 +102,13 @@ const DERIVED_STEP_PERCENT: f64 = 5.0;
 impl Profile {
     /// Parse and validate a profile from TOML text; `origin` names it in messages.
     pub fn from_toml(text: &str, origin: &str) -> Result<Profile, ProfileError> {
+        if text.trim_start_matches('\u{feff}').trim().is_empty() {
+            return Err(ProfileError::Syntax {
+                origin: origin.to_string(),
+                line: 1,
+                message: "the file is empty: expected a profile in TOML (id, name, family, cells, [curve], …; copy one of the shipped profiles/*.toml)".into(),
+            });
+        }
         let spec: ProfileFile = toml::from_str(text).map_err(|e| ProfileError::Syntax {
             origin: origin.to_string(),
             line: toml_error_line(text, &e),
@@ -261,8 +268,12 @@ impl Profile {
 
 /// The 1-based line of `text` a TOML error points at (1 when it has no position).
 pub fn toml_error_line(text: &str, e: &toml::de::Error) -> usize {
+    // Counted on bytes: a span need not fall on a character boundary.
     e.span()
-        .map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1)
+        .map(|s| {
+            let upto = &text.as_bytes()[..s.start.min(text.len())];
+            upto.iter().filter(|&&b| b == b'\n').count() + 1
+        })
         .unwrap_or(1)
 }
 
@@ -454,8 +465,12 @@ fn ranges(s: &ProfileFile) -> Vec<RangeRow<'_>> {
     rows
 }
 
+/// Longest profile id: ids are typed (`--profile`) and printed in tables.
+pub const MAX_ID_CHARS: usize = 64;
+
 fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
     let id_ok = !s.id.is_empty()
+        && s.id.len() <= MAX_ID_CHARS
         && s.id
             .chars()
             .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-');
@@ -463,7 +478,10 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
         return Err(invalid(
             origin,
             "id",
-            format!("'{}' must be lower-case letters, digits and hyphens", s.id),
+            format!(
+                "'{}' must be 1–{MAX_ID_CHARS} lower-case letters, digits and hyphens",
+                crate::units::clip(&s.id)
+            ),
         ));
     }
     if s.cells.value == 0 || s.cells.value > 400 {
@@ -472,6 +490,22 @@ fn validate(s: &ProfileFile, origin: &str) -> Result<(), ProfileError> {
             "cells.value",
             format!("{} cells: expected 1–400", s.cells.value),
         ));
+    }
+    if let Some(f) = &s.float {
+        let c = f.compensation_mv_per_k_per_cell.value;
+        // Before the range check, so 0 and positive values get this message.
+        // Common practice: a float charger lowers its voltage as the battery
+        // warms (about −3 mV/K per cell); none, or the other way, overcharges
+        // a warm battery.
+        if c >= 0.0 {
+            return Err(invalid(
+                origin,
+                "float.compensation_mv_per_k_per_cell.value",
+                format!(
+                    "{c} mV/K per cell: a float compensation must be negative, as the float voltage is lowered when the battery warms (typically about -3 mV/K per cell)"
+                ),
+            ));
+        }
     }
     for (key, v, lo, hi, unit) in ranges(s) {
         check_range(origin, key, v, lo, hi, unit)?;
@@ -720,6 +754,22 @@ mod tests {
             .to_string();
         assert!(err.contains("charging compensation"), "{err}");
 
+        // The float compensation lowers the float voltage as it warms
+        // (−3 mV/K per cell, common practice): 0 and positive are refused.
+        for bad in ["0.0", "2.0"] {
+            let text = include_str!("../../profiles/agm.toml").replace(
+                "compensation_mv_per_k_per_cell = { value = -3.0",
+                &format!("compensation_mv_per_k_per_cell = {{ value = {bad}"),
+            );
+            let err = Profile::from_toml(&text, "f.toml").unwrap_err().to_string();
+            assert!(
+                err.contains("f.toml")
+                    && err.contains("float.compensation_mv_per_k_per_cell")
+                    && err.contains("must be negative"),
+                "{err}"
+            );
+        }
+
         let few = include_str!("../../profiles/agm.toml").replace(
             "points = [[0.0, 1.975], [25.0, 2.025], [50.0, 2.070], [75.0, 2.110], [100.0, 2.140]]",
             "points = [[0.0, 1.975]]",
@@ -747,5 +797,41 @@ mod tests {
         assert!(store.get("agm").unwrap().spec.name.starts_with("Our AGM"));
         assert_eq!(store.notices().len(), 1);
         assert!(store.notices()[0].contains("overrides"));
+    }
+
+    #[test]
+    fn unreadable_files_say_where_and_what_was_expected() {
+        let e = Profile::from_toml(" \n\n", "e.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(e.starts_with("e.toml:1: the file is empty"), "{e}");
+        let dir = tempfile::tempdir().unwrap();
+        let agm = include_str!("../../profiles/agm.toml");
+        // 0xE9 is é in Latin-1 (ISO/IEC 8859-1), invalid alone in UTF-8.
+        let mut latin1 = agm
+            .replacen("name = \"", "name = \"Caf\u{e9} ", 1)
+            .into_bytes();
+        let at = latin1.windows(2).position(|w| w == "é".as_bytes()).unwrap();
+        latin1.splice(at..at + 2, [0xE9]);
+        let path = dir.path().join("l1.toml");
+        std::fs::write(&path, latin1).unwrap();
+        let e = store::load_file(&path).unwrap_err().to_string();
+        assert!(e.contains("l1.toml:2: ") && e.contains("0xE9"), "{e}");
+        let long_id = agm.replacen(
+            "id = \"agm\"",
+            &format!("id = \"{}\"", "a".repeat(1 << 20)),
+            1,
+        );
+        let e = Profile::from_toml(&long_id, "long.toml")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("1–64") && e.len() < 300, "{e}");
+        // A syntax error after multi-byte characters still finds its line.
+        let bad = format!("{agm}\n# ééé\nname = \"twice\"\n");
+        let e = Profile::from_toml(&bad, "dup.toml")
+            .unwrap_err()
+            .to_string();
+        let line = bad.lines().count();
+        assert!(e.starts_with(&format!("dup.toml:{line}:")), "{e}");
     }
 }

@@ -94,9 +94,14 @@ impl ProfileStore {
 
 /// Load and validate one profile file.
 pub fn load_file(path: &Path) -> Result<Profile, ProfileError> {
-    let text = std::fs::read_to_string(path).map_err(|e| ProfileError::Io {
+    let bytes = std::fs::read(path).map_err(|e| ProfileError::Io {
         path: path.display().to_string(),
         message: e.to_string(),
     })?;
-    Profile::from_toml(&text, &path.display().to_string())
+    let text = crate::units::utf8_text(&bytes).map_err(|e| ProfileError::Syntax {
+        origin: path.display().to_string(),
+        line: e.line as usize,
+        message: format!("{e}; re-save the file as UTF-8"),
+    })?;
+    Profile::from_toml(text, &path.display().to_string())
 }

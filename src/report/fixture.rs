@@ -52,6 +52,41 @@ pub fn report() -> (FleetReport, ProfileStore) {
     (report, store)
 }
 
+/// Invented float round (names invented): a 48 V string of four AGM monoblocs
+/// read on float at two visits, the charger holding 54.24 V. Block 2 floats
+/// low (so the others float higher), block 4 runs 13 K above the room, and the
+/// string current more than doubles at the same voltage. The
+/// site and string names carry characters every format must escape.
+pub const FLOAT_CSV: &str = "\
+unit_id,taken_at,profile,volts,cells,site,string,position,temp_c,after,float_current_a,ambient_c
+E1,2024-01-08 10:00,agm,13.56,6,East <UPS> room,U|1,1,23.0,float,0.10,22.0
+E2,2024-01-08 10:00,agm,13.56,6,East <UPS> room,U|1,2,23.2,float,0.10,22.0
+E3,2024-01-08 10:00,agm,13.56,6,East <UPS> room,U|1,3,23.1,float,0.10,22.0
+E4,2024-01-08 10:00,agm,13.56,6,East <UPS> room,U|1,4,24.0,float,0.10,22.0
+E1,2024-02-08 10:00,agm,13.74,6,East <UPS> room,U|1,1,23.0,float,0.25,22.0
+E2,2024-02-08 10:00,agm,13.26,6,East <UPS> room,U|1,2,23.3,float,0.25,22.0
+E3,2024-02-08 10:00,agm,13.74,6,East <UPS> room,U|1,3,23.1,float,0.25,22.0
+E4,2024-02-08 10:00,agm,13.50,6,East <UPS> room,U|1,4,35.0,float,0.25,22.0
+";
+
+/// The float fixture's report, analysed like [`report`].
+pub fn float_report() -> (FleetReport, ProfileStore) {
+    let store = ProfileStore::builtin().unwrap();
+    let settings = FleetSettings::default();
+    let mut state = FleetState::default();
+    state
+        .ingest(
+            "float.csv",
+            FLOAT_CSV.as_bytes(),
+            &IngestOptions::default(),
+            &store,
+            &settings,
+        )
+        .unwrap();
+    let report = finish(&state, &store, &settings);
+    (report, store)
+}
+
 /// The context every format test uses: fixed time, colour off.
 pub fn ctx(store: &ProfileStore) -> super::ReportContext<'_> {
     super::ReportContext {

@@ -5,7 +5,9 @@
 //! Sections, each a `<section id=…>`, in order: `header` (fleet, period,
 //! time of generation, restvolt version, profiles), `summary` (units by action
 //! and by site), `actions` (units needing action with reasons, evidence and
-//! sources), `charts`, `data-quality` (counts and every kept rejected row with
+//! sources), `float` (strings read on float charge: average and spread, the
+//! float checks with their sources, what can be said about the state of charge,
+//! and the units that raised a flag; one line when there are none), `charts`, `data-quality` (counts and every kept rejected row with
 //! its line), `cautions` (for the actions present, from
 //! [`safety::caution_text`](crate::safety::caution_text), pointing to
 //! SAFETY.md) and `how-to-read` (the 95 % intervals).
@@ -27,8 +29,9 @@ use super::charts::{
     ScatterPoint, StripPoint, Threshold,
 };
 use super::{
-    actions_present, evidence, location, needing_action, report_cautions, FleetFormat,
-    ReportContext,
+    actions_present, caution_actions, evidence, float_current_text, float_soc_status,
+    float_temp_spread_text, float_unit_reading, float_units_flagged, float_units_needing_action,
+    location, needing_action, report_cautions, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::correct::Action;
 use crate::fleet::analysis::{FleetReport, UnitReport};
@@ -67,6 +70,11 @@ pub fn escape(text: &str) -> String {
     }
     out
 }
+
+/// Nothing may load from anywhere (inline CSS and `data:` images excepted) and
+/// no script may run; a browser blocks and logs any load the page attempts,
+/// which is how the browser test proves the page needs nothing outside itself.
+const CSP: &str = "default-src 'none'; style-src 'unsafe-inline'; img-src data:";
 
 const STYLE: &str = "
 :root { color-scheme: light; }
@@ -185,6 +193,7 @@ impl FleetFormat for Html {
             h,
             "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
              <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+             <meta http-equiv=\"Content-Security-Policy\" content=\"{CSP}\">\n\
              <meta name=\"generator\" content=\"restvolt {}\">\n\
              <title>Fleet report: {}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<main>\n",
             env!("CARGO_PKG_VERSION"),
@@ -193,6 +202,7 @@ impl FleetFormat for Html {
         header(&mut h, report, ctx);
         summary(&mut h, report);
         actions(&mut h, report);
+        float_strings(&mut h, report);
         charts(&mut h, report, ctx);
         data_quality(&mut h, report);
         cautions(&mut h, report);
@@ -291,8 +301,111 @@ fn actions(h: &mut String, report: &FleetReport) {
         any = true;
         unit_block(h, u);
     }
+    let on_float = float_units_needing_action(report);
     if !any {
-        h.push_str("<p>No unit needs action: every unit is serviceable.</p>\n");
+        if on_float.is_empty() {
+            h.push_str("<p>No unit needs action: every unit is serviceable.</p>\n");
+        } else {
+            h.push_str("<p>No unit read at rest needs action.</p>\n");
+        }
+    }
+    if !on_float.is_empty() {
+        let ids: Vec<String> = on_float.iter().map(|id| escape(id)).collect();
+        let _ = writeln!(
+            h,
+            "<p class=\"note\">Units on float are judged under <a href=\"#float\">Strings on float</a>; \
+             {} need action there: {}.</p>",
+            ids.len(),
+            ids.join(", ")
+        );
+    }
+    h.push_str("</section>\n");
+}
+
+/// One reason as a list item: rule, action, evidence and source.
+fn reason_item(h: &mut String, r: &crate::correct::Reason) {
+    let _ = writeln!(
+        h,
+        "<li><strong>{}</strong> → {}: {}<span class=\"source\">Source: {}</span></li>",
+        escape(&r.rule),
+        escape(r.action.as_str()),
+        escape(&r.detail),
+        escape(&r.source)
+    );
+}
+
+fn float_strings(h: &mut String, report: &FleetReport) {
+    h.push_str("<section id=\"float\">\n<h2>Strings on float</h2>\n");
+    if report.float_strings.is_empty() {
+        h.push_str(
+            "<p class=\"note\">No reading in this report was taken on float charge.</p>\n</section>\n",
+        );
+        return;
+    }
+    let _ = writeln!(h, "<p>{}</p>", escape(FLOAT_INTRO));
+    for s in &report.float_strings {
+        let profile = s.per_unit.first().map_or("-", |c| c.profile.as_str());
+        let _ = write!(
+            h,
+            "<article class=\"unit float-string\">\n<h3>{} {}</h3>\n<dl class=\"evidence\">\n\
+             <dt>Profile</dt><dd>{}</dd>\n<dt>Units read</dt><dd>{}</dd>\n\
+             <dt>Float voltage per cell</dt><dd>{:.3} V average, spread {:.3} V</dd>\n\
+             <dt>Temperature spread</dt><dd>{}</dd>\n<dt>Float current</dt><dd>{}</dd>\n\
+             <dt>String action</dt><dd>{}: {}</dd>\n<dt>State of charge</dt><dd>{}</dd>\n</dl>\n",
+            escape(&s.string),
+            badge(s.action),
+            escape(profile),
+            s.units,
+            s.average_volts_per_cell,
+            s.spread_volts_per_cell,
+            escape(&float_temp_spread_text(s)),
+            escape(&float_current_text(s)),
+            escape(s.action.as_str()),
+            escape(s.action.meaning()),
+            escape(&float_soc_status(s))
+        );
+        if !s.reasons.is_empty() {
+            h.push_str("<ul class=\"reasons\">\n");
+            for r in &s.reasons {
+                reason_item(h, r);
+            }
+            h.push_str("</ul>\n");
+        }
+        let _ = writeln!(h, "<p>{}</p>", escape(&s.state_of_charge_note));
+        if !s.notes.is_empty() {
+            h.push_str("<ul class=\"note\">\n");
+            for n in &s.notes {
+                let _ = writeln!(h, "<li>{}</li>", escape(n));
+            }
+            h.push_str("</ul>\n");
+        }
+        let flagged: Vec<_> = float_units_flagged(s).collect();
+        if flagged.is_empty() {
+            h.push_str("<p class=\"note\">No unit raised a float flag.</p>\n</article>\n");
+            continue;
+        }
+        let _ = write!(
+            h,
+            "<table>\n<caption class=\"note\">Units of {} that raised a float flag, most urgent first</caption>\n\
+             <thead><tr><th scope=\"col\">Unit</th><th scope=\"col\" class=\"num\">#</th>\
+             <th scope=\"col\">Reading</th><th scope=\"col\">Action</th><th scope=\"col\">Flags and reasons</th></tr></thead>\n<tbody>\n",
+            escape(&s.string)
+        );
+        for c in flagged {
+            let _ = writeln!(
+                h,
+                "<tr><td>{}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td><td><ul class=\"reasons\">",
+                escape(&c.unit_id),
+                c.position.map(|p| p.to_string()).unwrap_or_default(),
+                escape(&float_unit_reading(c)),
+                badge(c.action)
+            );
+            for r in &c.reasons {
+                reason_item(h, r);
+            }
+            h.push_str("</ul></td></tr>\n");
+        }
+        h.push_str("</tbody>\n</table>\n</article>\n");
     }
     h.push_str("</section>\n");
 }
@@ -719,9 +832,9 @@ fn data_quality(h: &mut String, report: &FleetReport) {
 }
 
 fn cautions(h: &mut String, report: &FleetReport) {
-    let present: Vec<&str> = actions_present(report)
+    let present: Vec<&str> = caution_actions(report)
         .into_iter()
-        .map(|(a, _)| a.as_str())
+        .map(|a| a.as_str())
         .collect();
     let _ = writeln!(
         h,
@@ -805,6 +918,7 @@ mod tests {
                 "header",
                 "summary",
                 "actions",
+                "float",
                 "charts",
                 "data-quality",
                 "cautions",
@@ -846,6 +960,9 @@ mod tests {
     #[test]
     fn references_nothing_outside_itself() {
         let html = page();
+        assert!(html.contains(&format!(
+            "http-equiv=\"Content-Security-Policy\" content=\"{CSP}\""
+        )));
         let lower = html.to_ascii_lowercase();
         for bad in [
             "http://",
@@ -896,7 +1013,7 @@ mod tests {
         assert!(html.contains("&lt;img src=x onerror=alert(1)&gt;"));
         let doc = Page::parse_document(&html);
         let sel = Selector::parse("section[id]").unwrap();
-        assert_eq!(doc.select(&sel).count(), 7);
+        assert_eq!(doc.select(&sel).count(), 8);
         for svg in svgs(&html) {
             roxmltree::Document::parse(svg).unwrap();
         }
@@ -926,6 +1043,75 @@ mod tests {
         let names: Vec<String> = doc.select(&cautions).map(|e| e.text().collect()).collect();
         assert!(names.contains(&"Frozen battery".to_string()));
         assert_eq!(names.last().map(String::as_str), Some("Who decides"));
+    }
+
+    fn float_page() -> String {
+        let (report, store) = fixture::float_report();
+        Html.render(&report, &fixture::ctx(&store))
+    }
+
+    #[test]
+    fn float_section_is_one_line_without_float_readings() {
+        let html = page();
+        let doc = Page::parse_document(&html);
+        let sel = Selector::parse("#float > *").unwrap();
+        let kids: Vec<String> = doc
+            .select(&sel)
+            .map(|e| e.value().name().to_string())
+            .collect();
+        assert_eq!(kids, ["h2", "p"]);
+        assert!(html.contains("No reading in this report was taken on float charge."));
+    }
+
+    #[test]
+    fn snapshot_float_section() {
+        let html = float_page();
+        let start = html.find("<section id=\"float\">").unwrap();
+        let end = html[start..].find("</section>").unwrap() + start + "</section>".len();
+        insta::assert_snapshot!(&html[start..end]);
+    }
+
+    #[test]
+    fn float_section_lists_strings_and_flagged_units_with_words_not_colour() {
+        let html = float_page();
+        let doc = Page::parse_document(&html);
+        assert!(doc.errors.is_empty(), "HTML parse errors: {:?}", doc.errors);
+        let strings = Selector::parse("#float article.float-string h3").unwrap();
+        let titles: Vec<String> = doc.select(&strings).map(|e| e.text().collect()).collect();
+        // Escaped in the source, shown as written.
+        assert_eq!(titles, ["East <UPS> room / U|1 remeasure"]);
+        let rows = Selector::parse("#float tbody tr").unwrap();
+        let rows: Vec<String> = doc.select(&rows).map(|e| e.text().collect()).collect();
+        assert_eq!(rows.len(), 2, "only the flagged blocks: {rows:?}");
+        // Most urgent first; the action word is in the badge.
+        assert!(rows[0].starts_with("E44") && rows[0].contains("replace"));
+        assert!(rows[0].contains("thermal-runaway-risk"));
+        assert!(rows[1].starts_with("E22") && rows[1].contains("capacity-test"));
+        assert!(rows[1].contains("float-low") && rows[1].contains("float-deviation"));
+        // Every reason names its source.
+        let reasons = Selector::parse("#float ul.reasons li").unwrap();
+        let src = Selector::parse(".source").unwrap();
+        let mut n = 0;
+        for li in doc.select(&reasons) {
+            let s: String = li.select(&src).flat_map(|e| e.text()).collect();
+            assert!(s.starts_with("Source: ") && s.len() > 10, "{s}");
+            n += 1;
+        }
+        assert_eq!(n, 5, "two string reasons, one for E4, two for E2");
+        // The actions section points to the float section, inside the page.
+        let link = Selector::parse("#actions a[href=\"#float\"]").unwrap();
+        assert_eq!(doc.select(&link).count(), 1);
+        let cautions = Selector::parse("#cautions .caution h3").unwrap();
+        let names: Vec<String> = doc.select(&cautions).map(|e| e.text().collect()).collect();
+        assert!(names.contains(&"Thermal runaway".to_string()), "{names:?}");
+    }
+
+    #[test]
+    fn float_page_references_nothing_outside_itself() {
+        let lower = float_page().to_ascii_lowercase();
+        for bad in ["http://", "https://", "<script", "<link", "@import"] {
+            assert!(!lower.contains(bad), "page contains {bad}");
+        }
     }
 
     #[test]

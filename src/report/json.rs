@@ -27,10 +27,12 @@
 //!   - `ocv_per_cell_25c_volts`: latest rested voltage per cell referred to
 //!     25 °C, V; null when the reading was not rested or not trusted.
 //!   - `flags`: flag codes, sorted (e.g. `short-rest`, `freeze-risk`,
-//!     `peer-outlier`, `sulfation-risk`).
+//!     `peer-outlier`, `sulfation-risk`; for a unit read on float `on-float`
+//!     and its float check's codes).
 //!   - `reasons`: `{rule, action, detail, source}` each, most urgent first:
 //!     the rule id, the action it calls for, the evidence in words, and where
-//!     the rule comes from.
+//!     the rule comes from. A unit read on float has its float check's
+//!     reasons, and its string's that concern it (detail `string NAME: …`).
 //!   - `readings`: readings of the unit; `latest_at`: time of the latest.
 //!   - `trend_percent_per_30_days`: slope of rested state of charge, % per 30
 //!     days; `trend_readings`: rested readings behind it.
@@ -46,8 +48,10 @@
 //!   - `sg_mean_25c`: mean SG 25/25 of the latest hydrometer reading.
 //! - `float_strings`: per string on float: `string`, `units`,
 //!   `average_volts_per_cell`, `spread_volts_per_cell`, `temperature_spread_c`,
-//!   `per_unit` checks, `flags`, `action`, `reasons`, `fully_charged_on_float`,
-//!   `rest_test_units`, `state_of_charge_note` (never a state of charge).
+//!   `per_unit` checks, `flags` (`{code, detail, rule, source}`, and `units`
+//!   when a string-level flag names units), `action`, `reasons`,
+//!   `fully_charged_on_float`, `rest_test_units`, `state_of_charge_note`
+//!   (never a state of charge).
 //! - `rejected`: `{file, line, reason}` per rejected record (at most the
 //!   first 1000; `summary.rows_rejected` is always the full count).
 //! - `notices`: messages from reading the input.

@@ -9,8 +9,9 @@
 //! GitHub tables) accept inside a table cell.
 
 use super::{
-    actions_present, location, needing_action, report_cautions, soc_text, FleetFormat,
-    ReportContext,
+    actions_present, caution_actions, float_current_text, float_soc_status, float_temp_spread_text,
+    float_unit_reading, float_units_flagged, float_units_needing_action, location, needing_action,
+    report_cautions, soc_text, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::fleet::analysis::FleetReport;
 use crate::safety::caution_text;
@@ -108,10 +109,21 @@ impl FleetFormat for Markdown {
         if !any {
             m.push_str("No unit needs action.\n");
         }
+        let on_float = float_units_needing_action(report);
+        if !on_float.is_empty() {
+            let ids: Vec<String> = on_float.iter().map(|id| escape(id)).collect();
+            let _ = writeln!(
+                m,
+                "\nUnits on float are judged under *Strings on float*; {} need action there: {}.",
+                ids.len(),
+                ids.join(", ")
+            );
+        }
         m.push_str(
             "\nSOC is the state of charge at the latest reading, with its 95 % interval \
              in brackets.\n",
         );
+        float_strings(&mut m, report);
 
         m.push_str("\n## Data quality\n\n");
         let _ = writeln!(
@@ -150,9 +162,9 @@ impl FleetFormat for Markdown {
         }
 
         m.push_str("\n## Cautions\n\n");
-        let present: Vec<&str> = actions_present(report)
+        let present: Vec<&str> = caution_actions(report)
             .into_iter()
-            .map(|(a, _)| a.as_str())
+            .map(|a| a.as_str())
             .collect();
         let _ = writeln!(
             m,
@@ -168,6 +180,77 @@ impl FleetFormat for Markdown {
             );
         }
         m
+    }
+}
+
+/// `rule → action: detail — source`, escaped.
+fn reason(r: &crate::correct::Reason) -> String {
+    format!(
+        "{} → {}: {} — {}",
+        escape(&r.rule),
+        r.action.as_str(),
+        escape(&r.detail),
+        escape(&r.source)
+    )
+}
+
+/// The float section: nothing at all when no reading was on float.
+fn float_strings(m: &mut String, report: &FleetReport) {
+    if report.float_strings.is_empty() {
+        return;
+    }
+    let _ = writeln!(m, "\n## Strings on float\n\n{FLOAT_INTRO}\n");
+    m.push_str(
+        "| string | profile | units | average V/cell (spread) | temperature spread | float current | string action | state of charge |\n\
+         |---|---|---:|---|---|---|---|---|\n",
+    );
+    for s in &report.float_strings {
+        let profile = s.per_unit.first().map_or("-", |c| c.profile.as_str());
+        let _ = writeln!(
+            m,
+            "| {} | {} | {} | {:.3} ({:.3}) | {} | {} | **{}** | {} |",
+            escape(&s.string),
+            escape(profile),
+            s.units,
+            s.average_volts_per_cell,
+            s.spread_volts_per_cell,
+            escape(&float_temp_spread_text(s)),
+            escape(&float_current_text(s)),
+            s.action.as_str(),
+            escape(&float_soc_status(s))
+        );
+    }
+    for s in &report.float_strings {
+        let _ = writeln!(m, "\n### {}\n", escape(&s.string));
+        for r in &s.reasons {
+            let _ = writeln!(m, "- {}", reason(r));
+        }
+        let _ = writeln!(m, "- {}", escape(&s.state_of_charge_note));
+        for n in &s.notes {
+            let _ = writeln!(m, "- Note: {}", escape(n));
+        }
+        let flagged: Vec<_> = float_units_flagged(s).collect();
+        if flagged.is_empty() {
+            m.push_str("\nNo unit raised a float flag.\n");
+            continue;
+        }
+        m.push_str(
+            "\n| unit | # | reading | flags | action | reasons |\n|---|---:|---|---|---|---|\n",
+        );
+        for c in flagged {
+            let codes: Vec<&str> = c.flags.iter().map(|f| f.code.as_str()).collect();
+            let reasons: Vec<String> = c.reasons.iter().map(reason).collect();
+            let _ = writeln!(
+                m,
+                "| {} | {} | {} | {} | **{}** | {} |",
+                escape(&c.unit_id),
+                c.position.map(|p| p.to_string()).unwrap_or_default(),
+                escape(&float_unit_reading(c)),
+                codes.join(", "),
+                c.action.as_str(),
+                reasons.join("<br>")
+            );
+        }
     }
 }
 
@@ -210,6 +293,39 @@ mod tests {
         let md = out();
         // The fixture's site "North <Depot>" must not become an HTML tag.
         assert!(md.contains("North &lt;Depot&gt;") && !md.contains("<Depot>"));
+    }
+
+    fn float_out() -> String {
+        let (report, store) = fixture::float_report();
+        Markdown.render(&report, &fixture::ctx(&store))
+    }
+
+    #[test]
+    fn snapshot_float_section() {
+        let md = float_out();
+        let section =
+            &md[md.find("## Strings on float").unwrap()..md.find("## Data quality").unwrap()];
+        insta::assert_snapshot!(section);
+    }
+
+    #[test]
+    fn float_section_only_when_there_are_float_readings() {
+        assert!(!out().contains("Strings on float"));
+        let md = float_out();
+        // The string "U|1" at "East <UPS> room" must neither split a table row
+        // nor become an HTML tag.
+        assert!(
+            md.contains("| East &lt;UPS&gt; room / U\\|1 | agm | 4 |"),
+            "{md}"
+        );
+        assert!(!md.contains("<UPS>"));
+        // Only the flagged blocks get a row in the per-unit table.
+        let section = &md[md.find("## Strings on float").unwrap()..];
+        assert!(section.contains("| E4 | 4 |") && section.contains("| E2 | 2 |"));
+        assert!(!section.contains("| E1 | 1 |") && !section.contains("| E3 | 3 |"));
+        // The hot block's caution reaches the caution list, and its action the sentence.
+        assert!(md.contains("- **Thermal runaway**"));
+        assert!(md.contains("call for (replace, remeasure, capacity-test, serviceable)"));
     }
 
     #[test]

@@ -23,9 +23,11 @@ pub mod table;
 
 use crate::correct::Action;
 use crate::fleet::analysis::{FleetReport, UnitReport};
+use crate::float::{StringFloatAnalysis, UnitFloatCheck};
 use crate::profile::store::ProfileStore;
 use crate::safety::{cautions_for_work, Caution, WorkKind};
 use std::fmt;
+use std::fmt::Write as _;
 use std::str::FromStr;
 
 /// What a format needs besides the report itself.
@@ -206,7 +208,109 @@ pub(crate) fn report_cautions(report: &FleetReport) -> Vec<Caution> {
     {
         work.push(WorkKind::Frozen);
     }
-    cautions_for_work(&work)
+    let mut cautions = cautions_for_work(&work);
+    // A unit on float is judged in its string's analysis, not in `units`: its
+    // work (a hot VRLA unit above all) brings its own cautions.
+    for s in &report.float_strings {
+        cautions.extend(s.cautions.iter().copied());
+    }
+    cautions.sort();
+    cautions.dedup();
+    cautions
+}
+
+/// The actions the cautions cover: those of the units, then those the float
+/// checks call for that the units do not, most urgent first.
+pub(crate) fn caution_actions(report: &FleetReport) -> Vec<Action> {
+    let mut out: Vec<Action> = actions_present(report).iter().map(|(a, _)| *a).collect();
+    for s in &report.float_strings {
+        out.push(s.action);
+        out.extend(s.per_unit.iter().map(|c| c.action));
+    }
+    out.sort();
+    out.dedup();
+    out
+}
+
+/// Units on float whose float checks raised a flag, with their string, in the
+/// order of the float section (string, then most urgent action, then position).
+pub(crate) fn float_units_flagged(
+    s: &StringFloatAnalysis,
+) -> impl Iterator<Item = &UnitFloatCheck> {
+    let mut v: Vec<&UnitFloatCheck> = s.per_unit.iter().filter(|c| !c.flags.is_empty()).collect();
+    v.sort_by(|a, b| {
+        a.action
+            .cmp(&b.action)
+            .then(a.position.cmp(&b.position))
+            .then(a.unit_id.cmp(&b.unit_id))
+    });
+    v.into_iter()
+}
+
+/// Ids of the units on float whose checks call for action, for the pointer
+/// from the units-needing-action part of a report to the float section.
+pub(crate) fn float_units_needing_action(report: &FleetReport) -> Vec<&str> {
+    report
+        .float_strings
+        .iter()
+        .flat_map(|s| s.per_unit.iter())
+        .filter(|c| c.action != Action::Serviceable)
+        .map(|c| c.unit_id.as_str())
+        .collect()
+}
+
+/// The sentence every format opens its float section with.
+pub(crate) const FLOAT_INTRO: &str = "Readings taken on float charge, grouped by string. A float \
+     voltage is held up by the charger, so no state of charge is read from it; the checks are the \
+     share of the float voltage each unit gets, temperatures, and the float current over visits.";
+
+/// "0.45 A (expected 0.100 A)", with what is missing said in words.
+pub(crate) fn float_current_text(s: &StringFloatAnalysis) -> String {
+    let expected = match s.expected_current_amperes {
+        Some(e) => format!("expected {e:.3} A"),
+        None => "expected unknown: no capacity given".into(),
+    };
+    match s.float_current_amperes {
+        Some(i) => format!("{i:.3} A ({expected})"),
+        None => format!("not read ({expected})"),
+    }
+}
+
+/// "11.0 K", or why there is none.
+pub(crate) fn float_temp_spread_text(s: &StringFloatAnalysis) -> String {
+    match s.temperature_spread_c {
+        Some(t) => format!("{t:.1} K"),
+        None => "not checked (fewer than two unit temperatures)".into(),
+    }
+}
+
+/// The state-of-charge verdict in a few words; the full note says why.
+pub(crate) fn float_soc_status(s: &StringFloatAnalysis) -> String {
+    match (s.fully_charged_on_float, s.rest_test_units.is_empty()) {
+        (Some(true), _) => "fully charged on float".into(),
+        (_, true) => "not shown fully charged; no unit to rest-test yet".into(),
+        (_, false) => format!(
+            "not shown fully charged; rest-test {}",
+            s.rest_test_units.join(", ")
+        ),
+    }
+}
+
+/// "2.255 V/cell at 35.0 °C (ambient 23.0 °C)" with the parts that are known.
+pub(crate) fn float_unit_reading(c: &UnitFloatCheck) -> String {
+    let mut t = format!("{:.3} V/cell", c.volts_per_cell);
+    if let Some(x) = c.temperature_celsius {
+        let _ = write!(t, " at {x:.1} °C");
+    }
+    if let Some(a) = c.ambient_celsius {
+        let _ = write!(t, " (ambient {a:.1} °C)");
+    }
+    let _ = write!(
+        t,
+        "; window {:.3}–{:.3} V/cell",
+        c.window_volts_per_cell[0], c.window_volts_per_cell[1]
+    );
+    t
 }
 
 /// "site / string / #position" with the parts that are known.
@@ -364,6 +468,93 @@ mod tests {
         assert_eq!(truncate("abc", 3), "abc");
         assert_eq!(truncate("abcd", 3), "ab…");
         assert_eq!(truncate("°°°°", 2), "°…");
+    }
+
+    #[test]
+    fn every_format_renders_the_float_strings_without_a_state_of_charge() {
+        let (report, store) = fixture::float_report();
+        let ctx = fixture::ctx(&store);
+        assert_eq!(report.float_strings.len(), 1);
+        // The fixture's float units are never given a state of charge
+        // (a float voltage is held by the charger: common practice).
+        assert!(report.units.iter().all(|u| u.soc_percent.is_none()));
+        for k in [FormatKind::Table, FormatKind::Markdown, FormatKind::Html] {
+            let out = render(k, &report, &ctx);
+            assert!(
+                out.contains("cannot be read from float voltage"),
+                "{k}: the state-of-charge note"
+            );
+            // The flagged blocks and their flags, in every format.
+            for want in [
+                "E2",
+                "E4",
+                "float-low",
+                "float-deviation",
+                "thermal-runaway-risk",
+                "temp-spread",
+                "FIST 3-6",
+                "rest-test E2",
+            ] {
+                assert!(out.contains(want), "{k}: {want} missing");
+            }
+            // The healthy blocks have no line of their own in the float section.
+            assert!(!out.contains("E1 #1") && !out.contains("| E1 | 1 |"), "{k}");
+        }
+    }
+
+    #[test]
+    fn a_hot_unit_on_float_brings_the_thermal_runaway_caution() {
+        // VRLA makers' manuals (published, REFERENCES §5, via safety.rs): a unit
+        // in thermal runaway is a hazard of its own; the float fixture's E4 is
+        // 13 K above the room, so its caution must reach the report's list.
+        let (report, _) = fixture::float_report();
+        assert!(report_cautions(&report).contains(&Caution::ThermalRunaway));
+        assert_eq!(float_units_needing_action(&report), ["E2", "E4"]);
+        let (plain, _) = fixture::report();
+        assert!(!report_cautions(&plain).contains(&Caution::ThermalRunaway));
+        assert!(float_units_needing_action(&plain).is_empty());
+    }
+
+    #[test]
+    fn a_settled_string_is_reported_fully_charged_on_float() {
+        use crate::float::{analyse_string, FloatReading};
+        use crate::rules::Rules;
+        use crate::units::{AmpHours, Amperes, Celsius, Volts};
+        let (mut report, store) = fixture::report();
+        let p = store.get("agm").unwrap();
+        let at = |d: u32| {
+            chrono::NaiveDate::from_ymd_opt(2024, 1, d)
+                .unwrap()
+                .and_hms_opt(9, 0, 0)
+                .unwrap()
+        };
+        let readings: Vec<FloatReading> = (1..=4)
+            .map(|i| FloatReading {
+                unit_id: format!("S{i}"),
+                string: Some("settled".into()),
+                position: Some(i),
+                taken_at: Some(at(20)),
+                volts: Volts(13.62),
+                cells: 6,
+                temperature: Some(Celsius(24.0)),
+                ambient: Some(Celsius(23.0)),
+                float_current: Some(Amperes(0.10)),
+                capacity: Some(AmpHours(100.0)),
+            })
+            .collect();
+        // 100 Ah × 1 mA/Ah (the profile's expected float current, from memory)
+        // = 0.1 A; 0.1 A at both visits is within the ×2 settled factor (common practice).
+        let previous = [(at(6), Amperes(0.11), Volts(54.48))];
+        let a = analyse_string(p, "settled", &readings, &previous, &Rules::default()).unwrap();
+        assert_eq!(a.fully_charged_on_float, Some(true));
+        report.float_strings = vec![a];
+        let ctx = fixture::ctx(&store);
+        for k in [FormatKind::Table, FormatKind::Markdown, FormatKind::Html] {
+            let out = render(k, &report, &ctx);
+            assert!(out.contains("fully charged on float"), "{k}");
+            assert!(out.contains("0.100 A (expected 0.100 A)"), "{k}");
+            assert!(!out.contains("rest-test S"), "{k}");
+        }
     }
 
     #[test]

@@ -8,8 +8,9 @@
 //! shown as `?` so input cannot drive the terminal.
 
 use super::{
-    actions_present, location, needing_action, report_cautions, soc_text, truncate, FleetFormat,
-    ReportContext,
+    actions_present, float_current_text, float_soc_status, float_temp_spread_text,
+    float_unit_reading, float_units_flagged, float_units_needing_action, location, needing_action,
+    report_cautions, soc_text, truncate, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::correct::Action;
 use crate::fleet::analysis::FleetReport;
@@ -104,7 +105,12 @@ impl Out {
     }
     /// Words wrapped to the line width after `indent` spaces.
     fn wrapped(&mut self, indent: usize, text: &str) {
-        let mut line = " ".repeat(indent);
+        self.hanging(indent, indent, text);
+    }
+    /// Words wrapped to the line width, the first line after `first` spaces and
+    /// the rest after `rest`, so a list item's continuation stands out.
+    fn hanging(&mut self, first: usize, rest: usize, text: &str) {
+        let mut line = " ".repeat(first);
         for word in clean(text).split_whitespace() {
             if line.trim().is_empty() {
                 line.push_str(word);
@@ -113,7 +119,7 @@ impl Out {
                 line.push_str(word);
             } else {
                 self.line(&line);
-                line = format!("{}{word}", " ".repeat(indent));
+                line = format!("{}{word}", " ".repeat(rest));
             }
         }
         if !line.trim().is_empty() {
@@ -194,7 +200,20 @@ impl FleetFormat for Table {
         if report.units.is_empty() {
             o.line("  (no units)");
         }
+        let on_float = float_units_needing_action(report);
+        if !on_float.is_empty() {
+            o.wrapped(
+                2,
+                &format!(
+                    "Units on float are judged under STRINGS ON FLOAT; {} need action there: {}",
+                    on_float.len(),
+                    on_float.join(", ")
+                ),
+            );
+        }
         o.blank();
+
+        float_strings(&mut o, report);
 
         o.heading("SUMMARY BY ACTION");
         for (a, n) in actions_present(report) {
@@ -242,7 +261,8 @@ impl FleetFormat for Table {
         for n in &report.notices {
             o.wrapped(2, &format!("notice: {n}"));
         }
-        if needing_action(report).next().is_some() {
+        if needing_action(report).next().is_some() || !float_units_needing_action(report).is_empty()
+        {
             o.blank();
             o.heading("CAUTIONS (long form in SAFETY.md)");
             let titles: Vec<&str> = report_cautions(report)
@@ -253,6 +273,86 @@ impl FleetFormat for Table {
         }
         o.buf
     }
+}
+
+/// The float section: nothing at all when no reading was on float.
+fn float_strings(o: &mut Out, report: &FleetReport) {
+    if report.float_strings.is_empty() {
+        return;
+    }
+    o.heading("STRINGS ON FLOAT (no state of charge is read from a float voltage)");
+    o.wrapped(2, FLOAT_INTRO);
+    for s in &report.float_strings {
+        let profile = s.per_unit.first().map_or("-", |c| c.profile.as_str());
+        o.line(&format!(
+            "  {}: {} unit{}, profile {}, string action {}",
+            clean(&s.string),
+            s.units,
+            if s.units == 1 { "" } else { "s" },
+            clean(profile),
+            s.action.as_str()
+        ));
+        o.hanging(
+            4,
+            6,
+            &format!(
+                "float {:.3} V/cell average, spread {:.3} V/cell; temperature spread {}; float current {}",
+                s.average_volts_per_cell,
+                s.spread_volts_per_cell,
+                float_temp_spread_text(s),
+                float_current_text(s)
+            ),
+        );
+        for r in &s.reasons {
+            reason(o, 4, r);
+        }
+        o.hanging(4, 6, &format!("state of charge: {}", float_soc_status(s)));
+        o.wrapped(6, &s.state_of_charge_note);
+        let mut flagged = float_units_flagged(s).peekable();
+        if flagged.peek().is_none() {
+            o.line("    no unit raised a float flag");
+        }
+        for c in flagged {
+            let place = c.position.map(|p| format!(" #{p}")).unwrap_or_default();
+            o.hanging(
+                4,
+                6,
+                &format!(
+                    "{}{place} {}: {}; flags {}",
+                    c.unit_id,
+                    c.action.as_str(),
+                    float_unit_reading(c),
+                    c.flags
+                        .iter()
+                        .map(|f| f.code.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            );
+            for r in &c.reasons {
+                reason(o, 6, r);
+            }
+        }
+        for n in &s.notes {
+            o.hanging(4, 6, &format!("note: {n}"));
+        }
+    }
+    o.blank();
+}
+
+/// One reason in full, wrapped: a float section names every source.
+fn reason(o: &mut Out, indent: usize, r: &crate::correct::Reason) {
+    o.hanging(
+        indent,
+        indent + 2,
+        &format!(
+            "- {} → {}: {} (source: {})",
+            r.rule,
+            r.action.as_str(),
+            r.detail,
+            r.source
+        ),
+    );
 }
 
 #[cfg(test)]
@@ -337,6 +437,39 @@ mod tests {
         assert_eq!(fit_flags(&[], 3), ("-".to_string(), false));
     }
 
+    /// The float section of a table: from its heading to the next one.
+    fn float_section(t: &str) -> &str {
+        let start = t.find("STRINGS ON FLOAT (").expect("float section");
+        let end = t[start..].find("SUMMARY BY ACTION").expect("next heading") + start;
+        &t[start..end]
+    }
+
+    #[test]
+    fn snapshot_float_section() {
+        let (report, store) = fixture::float_report();
+        let t = Table.render(&report, &fixture::ctx(&store));
+        for l in t.lines() {
+            assert!(l.chars().count() <= MAX_COLUMNS, "{l}");
+        }
+        insta::assert_snapshot!(float_section(&t));
+    }
+
+    #[test]
+    fn no_float_section_without_float_readings() {
+        let t = table(false);
+        assert!(!t.contains("STRINGS ON FLOAT") && !t.contains("Units on float"));
+    }
+
+    #[test]
+    fn float_units_needing_action_are_pointed_to_and_bring_cautions() {
+        let (report, store) = fixture::float_report();
+        let t = Table.render(&report, &fixture::ctx(&store));
+        // No unit read at rest needs action, but E2 and E4 on float do.
+        assert!(t.contains("2 need action there: E2, E4"));
+        let cautions = &t[t.find("CAUTIONS").expect("cautions shown")..];
+        assert!(cautions.contains("Thermal runaway"), "{cautions}");
+    }
+
     #[test]
     fn control_characters_cannot_reach_the_terminal() {
         let (mut report, store) = fixture::report();
@@ -344,5 +477,11 @@ mod tests {
         let out = Table.render(&report, &fixture::ctx(&store));
         assert!(!out.contains('\x1b') && !out.contains('\x07'));
         assert!(out.contains("evil?]0;title?"));
+        let (mut report, store) = fixture::float_report();
+        report.float_strings[0].string = "bad\x1b[2J".into();
+        report.float_strings[0].per_unit[1].reasons[0].detail = "x\x1b]0;t\x07".into();
+        let out = Table.render(&report, &fixture::ctx(&store));
+        assert!(!out.contains('\x1b') && !out.contains('\x07'));
+        assert!(out.contains("bad?[2J"));
     }
 }

@@ -27,9 +27,35 @@
 //! has a `minutes` or `hours` column.
 
 use super::{RestPoint, SettleError};
-use crate::units::{parse_decimal, parse_duration, Celsius, Hours, Volts};
+use crate::electrolyte::{TEMPERATURE_MAX_C, TEMPERATURE_MIN_C};
+use crate::units::{clip, parse_decimal, parse_duration, Celsius, Hours, Volts};
 use chrono::{DateTime, FixedOffset, NaiveDateTime, TimeZone};
 use std::io::Read;
+
+/// Unit voltages above this are no lead-acid unit or string (as `check --volts`).
+pub const MAX_VOLTS: f64 = 1000.0;
+/// Elapsed times beyond this (10 years) are typing errors, not a rest.
+pub const MAX_ELAPSED_HOURS: f64 = 10.0 * 365.25 * 24.0;
+
+/// What a temperature column should hold, for a value outside the range the
+/// electrolyte model accepts; a °C value that reads as a plausible °F one says
+/// so rather than being guessed.
+fn implausible_temperature(x: f64, fahrenheit: bool) -> String {
+    let range = format!("{TEMPERATURE_MIN_C} to {TEMPERATURE_MAX_C} °C");
+    if fahrenheit {
+        return format!(
+            "a plausible temperature in °F ({:.0} to {:.0} °F, i.e. {range})",
+            Celsius(TEMPERATURE_MIN_C).to_fahrenheit(),
+            Celsius(TEMPERATURE_MAX_C).to_fahrenheit()
+        );
+    }
+    let as_f = Celsius::from_fahrenheit(x).0;
+    if (TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&as_f) {
+        format!("a plausible temperature in °C ({range}): {x} °C is implausible, and as °F it would be {as_f:.1} °C; write °F values in a temp_f column")
+    } else {
+        format!("a plausible temperature in °C ({range})")
+    }
+}
 
 /// A reading with the battery temperature, when the file gave one.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -115,14 +141,18 @@ pub fn read_rest_csv<R: Read>(
     event_end: Option<NaiveDateTime>,
 ) -> Result<Vec<RestReading>, SettleError> {
     let src = source_name.to_string();
-    let mut text = String::new();
+    let mut bytes = Vec::new();
     reader
-        .read_to_string(&mut text)
+        .read_to_end(&mut bytes)
         .map_err(|e| SettleError::Io {
             source_name: src.clone(),
-            message: format!("{e} (expected a UTF-8 text file)"),
+            message: e.to_string(),
         })?;
-    let text = text.strip_prefix('\u{feff}').unwrap_or(&text);
+    let text = crate::units::utf8_text(&bytes).map_err(|e| SettleError::Line {
+        source_name: src.clone(),
+        line: e.line,
+        message: format!("{e}; re-save the file as UTF-8 (in a spreadsheet: CSV UTF-8)"),
+    })?;
     let delimiter = sniff_delimiter(text);
     // One reading per line. Lines are split one by one (rather than handing
     // the whole text to the CSV reader) so that blank and `#` comment lines
@@ -206,6 +236,7 @@ pub fn read_rest_csv<R: Read>(
     }
 
     let mut out = Vec::new();
+    let mut previous: Option<(u64, f64)> = None;
     let mut first_offset: Option<FixedOffset> = None;
     let mut saw_local = false;
     for item in lines {
@@ -228,8 +259,8 @@ pub fn read_rest_csv<R: Read>(
         let field_error = |col: usize, expected: &str| SettleError::Field {
             source_name: src.clone(),
             line,
-            column: header.get(col).unwrap_or("").to_string(),
-            value: field(col).to_string(),
+            column: clip(header.get(col).unwrap_or("")),
+            value: clip(field(col)),
             expected: expected.to_string(),
         };
 
@@ -245,6 +276,9 @@ pub fn read_rest_csv<R: Read>(
                 let x = parse_decimal(field(c), expected).map_err(|_| field_error(c, expected))?;
                 if x <= 0.0 {
                     return Err(field_error(c, expected));
+                }
+                if x / per_hour > MAX_ELAPSED_HOURS {
+                    return Err(field_error(c, "a rest time within 10 years"));
                 }
                 x / per_hour
             }
@@ -287,14 +321,44 @@ pub fn read_rest_csv<R: Read>(
                         &format!("a time after the end of the charge or discharge ({end})"),
                     ));
                 }
+                if seconds as f64 / 3600.0 > MAX_ELAPSED_HOURS {
+                    return Err(field_error(
+                        c,
+                        &format!(
+                            "a time within 10 years of the end of the charge or discharge ({end})"
+                        ),
+                    ));
+                }
                 seconds as f64 / 3600.0
             }
         };
+        let time_col = match time {
+            TimeColumn::Minutes(c) | TimeColumn::Hours(c) | TimeColumn::TakenAt(c) => c,
+        };
+        // Checked here rather than left to the fit so that the message names the line.
+        if let Some((prev_line, prev_hours)) = previous {
+            if elapsed_hours <= prev_hours {
+                return Err(field_error(
+                    time_col,
+                    &format!(
+                        "later than line {prev_line} ({} after the end): give the readings in time order, each at a distinct time",
+                        super::elapsed_text(prev_hours)
+                    ),
+                ));
+            }
+        }
+        previous = Some((line, elapsed_hours));
 
         let volts_expected = "a positive rest voltage in volts, like 12.65 or 12,65 (a negative reading means the leads are reversed)";
         let volts = parse_volts(field(volts_col))
             .filter(|v| *v > 0.0)
             .ok_or_else(|| field_error(volts_col, volts_expected))?;
+        if volts > MAX_VOLTS {
+            return Err(field_error(
+                volts_col,
+                "a battery rest voltage (at most 1000 V, like 12.65)",
+            ));
+        }
 
         let temperature = match temp_col {
             Some((c, _)) if field(c).is_empty() => None,
@@ -305,11 +369,15 @@ pub fn read_rest_csv<R: Read>(
                     "a temperature in °C, or empty"
                 };
                 let x = parse_decimal(field(c), expected).map_err(|_| field_error(c, expected))?;
-                Some(if fahrenheit {
+                let t = if fahrenheit {
                     Celsius::from_fahrenheit(x)
                 } else {
                     Celsius(x)
-                })
+                };
+                if !(TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&t.0) {
+                    return Err(field_error(c, &implausible_temperature(x, fahrenheit)));
+                }
+                Some(t)
             }
             None => None,
         };
@@ -356,6 +424,14 @@ pub fn parse_reading_arg(s: &str) -> Result<RestPoint, SettleError> {
         return Err(err(
             "the voltage must be positive (a negative reading means the leads are reversed)",
         ));
+    }
+    if v > MAX_VOLTS {
+        return Err(err(&format!(
+            "{v} V is not a battery rest voltage (at most {MAX_VOLTS} V)"
+        )));
+    }
+    if elapsed.0 > MAX_ELAPSED_HOURS {
+        return Err(err("the elapsed time must be within 10 years"));
     }
     Ok(RestPoint {
         elapsed,

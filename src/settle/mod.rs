@@ -220,7 +220,7 @@ pub enum SettleError {
         count: usize,
     },
     /// An elapsed time is zero, negative or not a number.
-    #[error("reading {index}: elapsed time {elapsed_hours} h is not after the end of the charge or discharge; elapsed times count from that end and must be positive")]
+    #[error("reading {index}: elapsed time {} is not after the end of the charge or discharge; elapsed times count from that end and must be positive", elapsed_text(*elapsed_hours))]
     BadElapsed {
         /// 1-based reading number.
         index: usize,
@@ -228,7 +228,7 @@ pub enum SettleError {
         elapsed_hours: f64,
     },
     /// Times not strictly increasing.
-    #[error("reading {index} at {elapsed_hours} h is not later than reading {} at {previous_hours} h: give the readings in time order, each at a distinct time", index - 1)]
+    #[error("reading {index} at {} is not later than reading {} at {}: give the readings in time order, each at a distinct time", elapsed_text(*elapsed_hours), index.saturating_sub(1), elapsed_text(*previous_hours))]
     NotIncreasing {
         /// 1-based reading number.
         index: usize,
@@ -250,7 +250,7 @@ pub enum SettleError {
         what: String,
     },
     /// The readings cover too little of the rest.
-    #[error("the readings cover {first_hours:.3} h to {last_hours:.3} h of rest: too short to tell a settling curve (need a span of at least {min_span_minutes} min and the last reading at least {min_ratio}× the first's elapsed time); keep waiting and add later readings")]
+    #[error("the readings cover {} to {} of rest: too short to tell a settling curve (need a span of at least {min_span_minutes} min and the last reading at least {min_ratio}× the first's elapsed time); keep waiting and add later readings", elapsed_text(*first_hours), elapsed_text(*last_hours))]
     SpanTooShort {
         /// Elapsed time of the first reading.
         first_hours: f64,
@@ -349,6 +349,45 @@ pub enum SettleError {
         /// What is wrong.
         message: String,
     },
+}
+
+impl SettleError {
+    /// True when the readings or options as given are unusable (a usage
+    /// error), false when they were read but the analysis refuses them
+    /// (span, fit, direction).
+    pub fn is_input_error(&self) -> bool {
+        !matches!(
+            self,
+            SettleError::SpanTooShort { .. }
+                | SettleError::PoorFit { .. }
+                | SettleError::WrongDirection { .. }
+                | SettleError::NoFit { .. }
+                | SettleError::Io { .. }
+        )
+    }
+}
+
+/// An elapsed time as a person would say it: minutes below two hours
+/// (`20 min`, `7.5 min`), hours up to four days, days beyond.
+pub fn elapsed_text(hours: f64) -> String {
+    fn trim(x: f64, decimals: usize) -> String {
+        let s = format!("{x:.decimals$}");
+        if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        }
+    }
+    if !hours.is_finite() {
+        return format!("{hours} h");
+    }
+    if hours.abs() < 2.0 {
+        format!("{} min", trim(hours * 60.0, 1))
+    } else if hours.abs() < 96.0 {
+        format!("{} h", trim(hours, 2))
+    } else {
+        format!("{} d", trim(hours / 24.0, 2))
+    }
 }
 
 fn check_options(opts: &SettleOptions) -> Result<(), SettleError> {

@@ -264,7 +264,13 @@ fn degenerate_inputs_are_refused_with_reasons() {
         matches!(e, SettleError::NotIncreasing { index: 2, .. }),
         "{e:?}"
     );
-    assert!(e.to_string().contains("reading 2 at 0.5 h"), "{e}");
+    // Elapsed times are printed as a person says them, not as raw hours.
+    assert!(
+        e.to_string()
+            .contains("reading 2 at 30 min is not later than reading 1 at 30 min"),
+        "{e}"
+    );
+    assert!(e.is_input_error());
 
     let e = analyse(&pts(&[(0.5, 12.9), (1.0, f64::NAN), (2.0, 12.8)]), &o).unwrap_err();
     assert_eq!(e, SettleError::NonFiniteVolts { index: 2 });
@@ -553,7 +559,71 @@ fn csv_bad_lines_name_file_line_and_column() {
         Err(SettleError::Header { .. })
     ));
     let e = read_rest_csv(&[0xff, 0xfe, 0x00][..], "bin.csv", None).unwrap_err();
-    assert!(matches!(e, SettleError::Io { .. }));
+    assert!(matches!(e, SettleError::Line { line: 1, .. }), "{e:?}");
+    assert!(e.to_string().contains("UTF-16"), "{e}");
+    // 0xB0 is the degree sign in Latin-1 (ISO/IEC 8859-1), not UTF-8.
+    let e = read_rest_csv(
+        &b"minutes,volts,temp_c\n10,12.9,18\n20,12.8,18\xb0\n"[..],
+        "l1.csv",
+        None,
+    )
+    .unwrap_err();
+    assert!(
+        e.to_string().starts_with("l1.csv:3: ") && e.to_string().contains("0xB0"),
+        "{e}"
+    );
+}
+
+#[test]
+fn implausible_values_name_their_line_and_what_was_expected() {
+    // 77 °F is 25 °C (77 − 32) × 5/9 (definition of the scales): named, not guessed.
+    let e = read("minutes,volts,temp_c\n10,12.9,18\n20,12.8,77\n", None).unwrap_err();
+    let m = e.to_string();
+    assert!(
+        m.starts_with("rest.csv:3: column 'temp_c': '77'")
+            && m.contains("25.0 °C")
+            && m.contains("temp_f"),
+        "{m}"
+    );
+    let e = read("minutes,volts,temp_f\n10,12.9,500\n", None).unwrap_err();
+    assert!(e.to_string().contains("°F"), "{e}");
+    let e = read("minutes,volts\n10,12.9\n20,1e9\n", None).unwrap_err();
+    assert!(
+        e.to_string().contains("rest.csv:3: column 'volts'") && e.to_string().contains("1000 V"),
+        "{e}"
+    );
+    let e = read("hours,volts\n1,12.9\n100000,12.8\n", None).unwrap_err();
+    assert!(
+        e.to_string().contains("rest.csv:3: column 'hours'") && e.to_string().contains("10 years"),
+        "{e}"
+    );
+    let e = read("minutes,volts\n10,12.9\n30,12.8\n20,12.7\n", None).unwrap_err();
+    assert!(
+        e.to_string()
+            .starts_with("rest.csv:4: column 'minutes': '20' is not later than line 3 (30 min"),
+        "{e}"
+    );
+    let e = read("minutes,volts\n10,12.9\n10,12.8\n", None).unwrap_err();
+    assert!(e.to_string().contains("distinct time"), "{e}");
+    let long = format!("minutes,volts\n10,{}\n", "1".repeat(1 << 20));
+    let e = read(&long, None).unwrap_err().to_string();
+    assert!(
+        e.len() < 400,
+        "a runaway field is clipped in the message: {} bytes",
+        e.len()
+    );
+    assert!(parse_reading_arg("20m=2000").is_err());
+    assert!(parse_reading_arg("100000h=12.8").is_err());
+}
+
+#[test]
+fn elapsed_times_read_as_people_say_them() {
+    assert_eq!(elapsed_text(1.0 / 6.0), "10 min");
+    assert_eq!(elapsed_text(0.125), "7.5 min");
+    assert_eq!(elapsed_text(1.5), "90 min");
+    assert_eq!(elapsed_text(2.5), "2.5 h");
+    assert_eq!(elapsed_text(24.0), "24 h");
+    assert_eq!(elapsed_text(120.0), "5 d");
 }
 
 #[test]

@@ -10,6 +10,8 @@ pub(crate) const INK: &str = "#333333";
 const GRID: &str = "#DDDDDD";
 const CHAR_W: f64 = 6.5; // rough width of one 11 px sans-serif character
 const LEGEND_ROW: f64 = 16.0;
+/// Largest marker half-size (diamond: radius 4 + 1, plus half its stroke), rounded up.
+const MARKER_OVERHANG: f64 = 6.0;
 
 /// Marker shapes; each series or kind of point gets its own.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -204,7 +206,14 @@ impl Canvas {
         );
 
         let y_target = ((area.bottom - area.top) / 40.0).clamp(2.0, 10.0) as usize;
-        let yd = scale::resolve(&f.y, &plan.y_data, plan.y_include_zero, true, y_target);
+        let yd = scale::resolve(
+            &f.y,
+            &plan.y_data,
+            plan.y_include_zero,
+            true,
+            true,
+            y_target,
+        );
         let y = Scale {
             d0: yd.lo,
             d1: yd.hi,
@@ -224,7 +233,7 @@ impl Canvas {
             }
             XPlan::Numeric { data, ticks } => {
                 let nice = ticks.is_empty();
-                let xd: Domain = scale::resolve(&f.x, data, false, nice, x_target);
+                let xd: Domain = scale::resolve(&f.x, data, false, nice, false, x_target);
                 let s = Scale {
                     d0: xd.lo,
                     d1: xd.hi,
@@ -305,9 +314,13 @@ impl Canvas {
         self.svg.open("defs", attrs! {});
         self.svg
             .open("clipPath", attrs! {"id" => format!("{}-clip", self.id)});
+        // The clip reaches past the frame by a marker's half-size, so a point
+        // on a fixed end (0 % or 100 %) is drawn whole instead of cut in half.
+        let m = MARKER_OVERHANG;
         self.svg.empty(
             "rect",
-            attrs! {"x" => a.left, "y" => a.top, "width" => a.right - a.left, "height" => a.bottom - a.top},
+            attrs! {"x" => a.left - m, "y" => a.top - m, "width" => a.right - a.left + 2.0 * m,
+            "height" => a.bottom - a.top + 2.0 * m},
         );
         self.svg.close("clipPath");
         for fill in legend.iter().filter_map(|e| e.swatch.fill) {

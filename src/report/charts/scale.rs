@@ -6,6 +6,11 @@ use super::Axis;
 /// spans finite so that a stray 1e308 cannot turn every coordinate into NaN.
 const LIMIT: f64 = 1e15;
 
+/// How close (as a fraction of the axis span) a data value may come to a free
+/// end of a nice axis before that end moves out by one step; 4 % of a plot
+/// about 200 px tall is 8 px, more than the largest marker's half-size.
+const EDGE_ROOM: f64 = 0.04;
+
 /// Maps a domain `[d0, d1]` linearly onto a pixel range `[r0, r1]` (r0 may be
 /// greater than r1, as for a y axis that grows upwards).
 #[derive(Clone, Copy, Debug)]
@@ -92,7 +97,9 @@ pub(crate) fn ticks_between(lo: f64, hi: f64, step: f64) -> Vec<f64> {
 }
 
 /// The domain for `axis` given the finite data values: the axis's own min/max
-/// win; otherwise the data range, widened to whole ticks when `nice` is set.
+/// win; otherwise the data range, widened to whole ticks when `nice` is set,
+/// and with `room` by one step more where a data value would sit on the end
+/// (for axes whose data are markers; a curve may well end on the frame).
 /// Equal ends are padded (5 % of the value, or 1 around zero) so that a single
 /// point sits mid-axis instead of dividing by zero.
 pub(crate) fn resolve(
@@ -100,6 +107,7 @@ pub(crate) fn resolve(
     data: &[f64],
     include_zero: bool,
     nice: bool,
+    room: bool,
     target: usize,
 ) -> Domain {
     let fixed_min = axis
@@ -116,13 +124,13 @@ pub(crate) fn resolve(
         .filter(|v| v.is_finite())
         .map(|v| v.clamp(-LIMIT, LIMIT));
     let zero = include_zero.then_some(0.0);
-    let (mut lo, mut hi) = finite
+    let data_range = finite
         .chain(zero)
         .fold(None, |acc: Option<(f64, f64)>, v| match acc {
             None => Some((v, v)),
             Some((a, b)) => Some((a.min(v), b.max(v))),
-        })
-        .unwrap_or((0.0, 1.0));
+        });
+    let (mut lo, mut hi) = data_range.unwrap_or((0.0, 1.0));
     lo = fixed_min.unwrap_or(lo);
     hi = fixed_max.unwrap_or(hi);
     if lo > hi {
@@ -147,6 +155,18 @@ pub(crate) fn resolve(
         }
         if fixed_max.is_none() {
             hi = (hi / step).ceil() * step;
+        }
+        // A data value on (or within a marker of) a free end would be drawn on
+        // the plot frame and half cut by the clip: give that end one more step.
+        // Zero brought in by `include_zero` is a baseline and stays the end.
+        if let Some((d_lo, d_hi)) = data_range.filter(|_| room) {
+            let near = EDGE_ROOM * (hi - lo);
+            if fixed_min.is_none() && !(include_zero && lo == 0.0) && d_lo - lo < near {
+                lo -= step;
+            }
+            if fixed_max.is_none() && !(include_zero && hi == 0.0) && hi - d_hi < near {
+                hi += step;
+            }
         }
     }
     Domain {
@@ -197,7 +217,7 @@ mod tests {
     }
 
     fn ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
-        resolve(&axis(Some(lo), Some(hi)), &[], false, true, target).ticks
+        resolve(&axis(Some(lo), Some(hi)), &[], false, true, false, target).ticks
     }
 
     #[test]
@@ -232,18 +252,53 @@ mod tests {
 
     #[test]
     fn resolve_pads_equal_ends() {
-        let d = resolve(&axis(None, None), &[12.6, 12.6], false, false, 5);
+        let d = resolve(&axis(None, None), &[12.6, 12.6], false, false, false, 5);
         assert!(d.lo < 12.6 && d.hi > 12.6);
-        let d = resolve(&axis(None, None), &[0.0], true, true, 5);
+        let d = resolve(&axis(None, None), &[0.0], true, true, false, 5);
         assert_eq!((d.lo, d.hi), (0.0, 2.0));
     }
 
     #[test]
     fn resolve_widens_to_whole_ticks_but_honours_fixed_ends() {
-        let d = resolve(&axis(None, None), &[11.83, 12.87], false, true, 5);
+        let d = resolve(&axis(None, None), &[11.83, 12.87], false, true, false, 5);
         assert_relative_eq!(d.lo, 11.8, epsilon = 1e-9);
         assert_relative_eq!(d.hi, 13.0, epsilon = 1e-9);
-        let d = resolve(&axis(Some(0.0), Some(100.0)), &[37.0, 55.0], false, true, 5);
+        // With room, 11.83 (2.5 % of the span above the 11.8 tick, inside
+        // EDGE_ROOM) would touch the frame, so that end moves one step down.
+        let d = resolve(&axis(None, None), &[11.83, 12.87], false, true, true, 5);
+        assert_relative_eq!(d.lo, 11.6, epsilon = 1e-9);
+        let d = resolve(
+            &axis(Some(0.0), Some(100.0)),
+            &[37.0, 55.0],
+            false,
+            true,
+            false,
+            5,
+        );
+        assert_eq!((d.lo, d.hi), (0.0, 100.0));
+    }
+
+    #[test]
+    fn resolve_keeps_data_off_free_ends() {
+        // A string whose low cell (2.071 V) rounds down to the 2.07 tick: the
+        // marker would sit on the frame, so the end moves to 2.06.
+        let d = resolve(&axis(None, None), &[2.071, 2.136], false, true, true, 5);
+        assert_relative_eq!(d.lo, 2.06, epsilon = 1e-9);
+        assert_relative_eq!(d.hi, 2.14, epsilon = 1e-9);
+        // A value exactly on a tick gets room too…
+        let d = resolve(&axis(None, None), &[2.1351, 2.1364], false, true, true, 5);
+        assert!(d.hi > 2.1364 + 0.03 * (d.hi - d.lo), "{d:?}");
+        // …but a bar chart's zero baseline and fixed ends stay where they are.
+        let d = resolve(&axis(Some(0.0), None), &[0.0, 11.0], true, true, true, 5);
+        assert_eq!((d.lo, d.hi), (0.0, 12.0));
+        let d = resolve(
+            &axis(Some(0.0), Some(100.0)),
+            &[0.0, 100.0],
+            false,
+            true,
+            true,
+            5,
+        );
         assert_eq!((d.lo, d.hi), (0.0, 100.0));
     }
 
@@ -254,10 +309,18 @@ mod tests {
             &[f64::NAN, f64::INFINITY],
             false,
             true,
+            false,
             5,
         );
         assert_eq!((d.lo, d.hi), (0.0, 10.0));
-        let d = resolve(&axis(None, None), &[f64::MAX, -f64::MAX], false, true, 5);
+        let d = resolve(
+            &axis(None, None),
+            &[f64::MAX, -f64::MAX],
+            false,
+            true,
+            false,
+            5,
+        );
         assert!(d.lo.is_finite() && d.hi.is_finite() && d.ticks.len() >= 2);
     }
 }
