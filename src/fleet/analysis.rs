@@ -453,15 +453,141 @@ struct Judged {
     sg_key: Option<(String, String)>,
 }
 
+/// What the report takes from the state besides the units' own judgements.
+struct Overview {
+    float_strings: Vec<crate::float::StringFloatAnalysis>,
+    float_findings: BTreeMap<String, UnitFloatFindings>,
+    period: Option<[String; 2]>,
+    profiles: Vec<String>,
+    duplicate_readings: u64,
+    short_rest_readings: u64,
+    rows_read: u64,
+    rows_accepted: u64,
+    rows_rejected: u64,
+    rejected: Vec<Rejected>,
+    notices: Vec<String>,
+}
+
+fn overview(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Overview {
+    let mut first: Option<chrono::NaiveDateTime> = None;
+    let mut last: Option<chrono::NaiveDateTime> = None;
+    let mut profiles: Vec<String> = Vec::new();
+    for s in state.units.values() {
+        if let (Some(f), Some((l, row))) = (s.first_at, s.latest()) {
+            first = Some(first.map_or(f, |x| x.min(f)));
+            last = Some(last.map_or(l.taken_at, |x| x.max(l.taken_at)));
+            if !profiles.iter().any(|p| **p == *row.profile) {
+                profiles.push(row.profile.to_string());
+            }
+        }
+    }
+    profiles.sort();
+    let (float_strings, float_findings) = float_strings(state, store, rules);
+    Overview {
+        float_strings,
+        float_findings,
+        period: first.zip(last).map(|(f, l)| {
+            [
+                f.format("%Y-%m-%d %H:%M").to_string(),
+                l.format("%Y-%m-%d %H:%M").to_string(),
+            ]
+        }),
+        profiles,
+        duplicate_readings: state.units.values().map(|s| s.duplicates()).sum(),
+        short_rest_readings: state.units.values().map(|s| s.short_rest).sum(),
+        rows_read: state.rows_read,
+        rows_accepted: state.rows_accepted,
+        rows_rejected: state.rejected_total,
+        rejected: state.rejected_rows(),
+        notices: state.notices.clone(),
+    }
+}
+
 /// Judge every unit and rank the fleet.
 pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings) -> FleetReport {
-    let rules = &settings.rules;
-    let mut judged: Vec<Judged> = state
+    let overview = overview(state, store, &settings.rules);
+    let judged = state
         .units
         .iter()
         .filter_map(|(id, s)| judge_unit(id, s, store, settings))
         .collect();
+    rank(overview, judged, store, settings)
+}
 
+/// [`finish`], consuming the state and judging the units on `threads`
+/// threads. Each unit's summary is dropped once it is judged, so the state
+/// and the report are never both held whole; the report is the same.
+pub fn finish_owned(
+    state: FleetState,
+    store: &ProfileStore,
+    settings: &FleetSettings,
+    threads: usize,
+) -> FleetReport {
+    let overview = overview(&state, store, &settings.rules);
+    let units = state.units;
+    let judged = if threads <= 1 {
+        units
+            .into_iter()
+            .filter_map(|(id, s)| judge_unit(&id, &s, store, settings))
+            .collect()
+    } else {
+        judge_on_threads(units, store, settings, threads)
+    };
+    rank(overview, judged, store, settings)
+}
+
+/// Judge units on worker threads fed from the map as it is taken apart.
+fn judge_on_threads(
+    units: BTreeMap<Arc<str>, UnitSummary>,
+    store: &ProfileStore,
+    settings: &FleetSettings,
+    threads: usize,
+) -> Vec<Judged> {
+    let (tx, rx) = std::sync::mpsc::sync_channel::<(Arc<str>, UnitSummary)>(256);
+    let rx = std::sync::Mutex::new(rx);
+    let mut judged: Vec<Judged> = std::thread::scope(|scope| {
+        let workers: Vec<_> = (0..threads)
+            .map(|_| {
+                let rx = &rx;
+                scope.spawn(move || {
+                    let mut out = Vec::new();
+                    loop {
+                        let next = match rx.lock() {
+                            Ok(rx) => rx.recv(),
+                            Err(_) => break,
+                        };
+                        let Ok((id, s)) = next else { break };
+                        out.extend(judge_unit(&id, &s, store, settings));
+                    }
+                    out
+                })
+            })
+            .collect();
+        for unit in units {
+            if tx.send(unit).is_err() {
+                break;
+            }
+        }
+        drop(tx);
+        workers
+            .into_iter()
+            .flat_map(|w| w.join().unwrap_or_default())
+            .collect()
+    });
+    // Back in the map's order, which the group rules below sum in.
+    judged.sort_by(|a, b| a.report.unit_id.cmp(&b.report.unit_id));
+    judged
+}
+
+/// The rules across units (peers, a string's hydrometer readings, float),
+/// the final actions, the ranking and the summary.
+fn rank(
+    overview: Overview,
+    mut judged: Vec<Judged>,
+    store: &ProfileStore,
+    settings: &FleetSettings,
+) -> FleetReport {
+    let rules = &settings.rules;
     // Peers: same string (else same site) and profile, rested latest readings.
     let mut groups: BTreeMap<(String, String), Vec<(usize, f64)>> = BTreeMap::new();
     for (i, j) in judged.iter().enumerate() {
@@ -535,7 +661,11 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
 
     // A unit read on float takes its float check's flags and reasons (and
     // the string's that concern it), so its action counts like any other.
-    let (float_strings, mut float_findings) = float_strings(state, store, rules);
+    let Overview {
+        float_strings,
+        mut float_findings,
+        ..
+    } = overview;
     for j in &mut judged {
         if let Some(f) = float_findings.remove(&j.report.unit_id) {
             j.report.flags.extend(f.flags);
@@ -576,42 +706,24 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
             .entry(u.action.as_str().to_string())
             .or_default() += 1;
     }
-    let mut first: Option<chrono::NaiveDateTime> = None;
-    let mut last: Option<chrono::NaiveDateTime> = None;
-    let mut profiles: Vec<String> = Vec::new();
-    for s in state.units.values() {
-        if let (Some(f), Some((l, row))) = (s.first_at, s.latest()) {
-            first = Some(first.map_or(f, |x| x.min(f)));
-            last = Some(last.map_or(l.taken_at, |x| x.max(l.taken_at)));
-            if !profiles.iter().any(|p| **p == *row.profile) {
-                profiles.push(row.profile.to_string());
-            }
-        }
-    }
-    profiles.sort();
     FleetReport {
         schema: FLEET_SCHEMA,
         summary: Summary {
-            rows_read: state.rows_read,
-            rows_accepted: state.rows_accepted,
-            rows_rejected: state.rejected_total,
+            rows_read: overview.rows_read,
+            rows_accepted: overview.rows_accepted,
+            rows_rejected: overview.rows_rejected,
             units: units.len(),
             by_action,
             by_site,
-            duplicate_readings: state.units.values().map(|s| s.duplicates()).sum(),
-            short_rest_readings: state.units.values().map(|s| s.short_rest).sum(),
-            period: first.zip(last).map(|(f, l)| {
-                [
-                    f.format("%Y-%m-%d %H:%M").to_string(),
-                    l.format("%Y-%m-%d %H:%M").to_string(),
-                ]
-            }),
-            profiles,
+            duplicate_readings: overview.duplicate_readings,
+            short_rest_readings: overview.short_rest_readings,
+            period: overview.period,
+            profiles: overview.profiles,
         },
         units,
         float_strings,
-        rejected: state.rejected_rows(),
-        notices: state.notices.clone(),
+        rejected: overview.rejected,
+        notices: overview.notices,
     }
 }
 
@@ -1129,12 +1241,12 @@ fn earlier_visits(
         {
             let e = visits.entry(h.taken_at).or_default();
             // 0 V or below is a lead off, not a share of the string voltage.
-            if let Some(v) = h.volts.filter(|v| v.0 > 0.0) {
+            if let Some(v) = h.volts().filter(|v| v.0 > 0.0) {
                 e.0 += 1;
                 e.1 += v.0;
             }
             // A negative current is a discharge or a reversed clamp, not a float current.
-            if let Some(i) = h.float_current.filter(|i| i.0 >= 0.0) {
+            if let Some(i) = h.float_current().filter(|i| i.0 >= 0.0) {
                 e.2.push(i.0);
             }
         }

@@ -454,12 +454,10 @@ impl<R: Read> Read for LineGuard<R> {
     fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
         let n = self.inner.read(out)?;
         let chunk = &out[..n];
-        for (i, &b) in chunk.iter().enumerate() {
-            if b == b'\n' {
-                self.pending.push_back(self.offset + i as u64);
-            }
+        for i in memchr::memchr_iter(b'\n', chunk) {
+            self.pending.push_back(self.offset + i as u64);
         }
-        match chunk.iter().rposition(|&b| b == b'\n' || b == b'\r') {
+        match memchr::memrchr2(b'\n', b'\r', chunk) {
             Some(i) => self.run = (n - i - 1) as u64,
             None => self.run += n as u64,
         }
@@ -1078,7 +1076,7 @@ impl RowParser<'_> {
 
 fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteRecord) -> u64 {
     let end = rdr.position().byte();
-    let inner = rec.as_slice().iter().filter(|&&b| b == b'\n').count() as u64;
+    let inner = memchr::memchr_iter(b'\n', rec.as_slice()).count() as u64;
     rdr.get_mut().record_line(end, inner)
 }
 

@@ -11,7 +11,7 @@
 
 use super::ingest::FleetRow;
 use crate::correct::After;
-use crate::units::{Amperes, Celsius, Volts};
+use crate::units::{Amperes, Volts};
 use chrono::NaiveDateTime;
 use std::cmp::Ordering;
 
@@ -28,47 +28,60 @@ const AGEING_SCALE: f64 = 1_000_000.0;
 
 /// A reading as kept in a unit's history: what the history rules, the
 /// charts and the float checks use, and no more (the full row is kept for the
-/// latest reading only).
+/// latest reading only). A large fleet's memory is mostly these points, so
+/// absent values are held as a sentinel (no state of charge) or NaN (no
+/// voltage or current; the reader never gives a NaN) rather than in
+/// `Option`s, which keeps a point at 48 bytes; the accessors give `Option`s.
 #[derive(Clone, Debug, PartialEq)]
 pub struct HistoryPoint {
     /// When taken.
     pub taken_at: NaiveDateTime,
-    /// State of charge from the rested reading, 0.001 % units (None if the reading had no usable rest voltage or SG).
-    pub soc_milli_percent: Option<i64>,
-    /// Its 95 % interval, 0.001 % units.
-    pub soc_interval_milli_percent: Option<[i64; 2]>,
     /// What preceded it.
     pub after: After,
     /// Whether the rest was at least the profile's minimum (or the unit idle).
     pub rested: bool,
-    /// The unit's voltage as read.
-    pub volts: Option<Volts>,
-    /// Its temperature as read.
-    pub temperature: Option<Celsius>,
-    /// Float current, for float readings.
-    pub float_current: Option<Amperes>,
+    /// State of charge, 0.001 % units, or [`NO_SOC`].
+    soc_milli_percent: i32,
+    /// Its 95 % interval, 0.001 % units ([`NO_SOC`] when there is no state of charge).
+    soc_interval_milli_percent: [i32; 2],
+    /// The unit's voltage as read, or NaN.
+    volts: f64,
+    /// Float current, for float readings, or NaN.
+    float_current_amperes: f64,
 }
+
+/// [`HistoryPoint`]'s "no state of charge" (the reading had no usable rest voltage or SG).
+const NO_SOC: i32 = i32::MIN;
 
 impl HistoryPoint {
     /// State of charge in percent, where the reading gave one.
     pub fn soc_percent(&self) -> Option<f64> {
-        self.soc_milli_percent.map(|q| q as f64 / SOC_SCALE)
+        (self.soc_milli_percent != NO_SOC).then(|| self.soc_milli_percent as f64 / SOC_SCALE)
     }
 
     /// Its 95 % interval in percent.
     pub fn soc_interval_percent(&self) -> Option<[f64; 2]> {
-        self.soc_interval_milli_percent
-            .map(|[lo, hi]| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
+        let [lo, hi] = self.soc_interval_milli_percent;
+        (self.soc_milli_percent != NO_SOC).then(|| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
+    }
+
+    /// The unit's voltage as read.
+    pub fn volts(&self) -> Option<Volts> {
+        (!self.volts.is_nan()).then_some(Volts(self.volts))
+    }
+
+    /// Float current as read.
+    pub fn float_current(&self) -> Option<Amperes> {
+        (!self.float_current_amperes.is_nan()).then_some(Amperes(self.float_current_amperes))
     }
 
     /// Total order: time, then every other field, so that the same set of
     /// readings is kept and chosen whatever order they arrive in (points
     /// that compare equal are identical).
     fn order(&self, other: &HistoryPoint) -> Ordering {
-        let bits = |v: Option<f64>| v.map(f64::to_bits);
         self.taken_at
             .cmp(&other.taken_at)
-            .then_with(|| bits(self.volts.map(|v| v.0)).cmp(&bits(other.volts.map(|v| v.0))))
+            .then_with(|| self.volts.to_bits().cmp(&other.volts.to_bits()))
             .then_with(|| self.soc_milli_percent.cmp(&other.soc_milli_percent))
             .then_with(|| {
                 self.soc_interval_milli_percent
@@ -77,10 +90,9 @@ impl HistoryPoint {
             .then_with(|| self.after.cmp(&other.after))
             .then_with(|| self.rested.cmp(&other.rested))
             .then_with(|| {
-                bits(self.temperature.map(|t| t.0)).cmp(&bits(other.temperature.map(|t| t.0)))
-            })
-            .then_with(|| {
-                bits(self.float_current.map(|a| a.0)).cmp(&bits(other.float_current.map(|a| a.0)))
+                self.float_current_amperes
+                    .to_bits()
+                    .cmp(&other.float_current_amperes.to_bits())
             })
     }
 }
@@ -147,7 +159,7 @@ pub struct UnitSummary {
     /// taken at the same time are all kept (they are duplicates).
     pub history: Vec<HistoryPoint>,
     /// The full row of the latest reading (the greatest by time, then content).
-    pub latest_row: Option<FleetRow>,
+    pub latest_row: Option<Box<FleetRow>>,
 }
 
 /// Add capacities to a kept set: ascending, distinct, the smallest
@@ -182,7 +194,9 @@ impl UnitSummary {
         if short_rest {
             self.short_rest += 1;
         }
-        let quantise = |x: f64| (x * SOC_SCALE).round() as i64;
+        // 0–100 % in 0.001 % steps fits an i32 with room to spare (and far
+        // from NO_SOC); `as` saturates, and the estimate is clamped to 0–100 %.
+        let quantise = |x: f64| (x.clamp(0.0, 100.0) * SOC_SCALE).round() as i32;
         let soc_q = soc.map(|(s, _)| quantise(s));
         let interval_q = soc.map(|(_, [lo, hi])| [quantise(lo), quantise(hi)]);
         if let (Some(s), true) = (soc_q, rested) {
@@ -216,13 +230,12 @@ impl UnitSummary {
         }
         let point = HistoryPoint {
             taken_at: row.taken_at,
-            soc_milli_percent: soc_q,
-            soc_interval_milli_percent: interval_q,
             after: row.after,
             rested,
-            volts: row.volts,
-            temperature: row.temperature,
-            float_current: row.float_current,
+            soc_milli_percent: soc_q.unwrap_or(NO_SOC),
+            soc_interval_milli_percent: interval_q.unwrap_or([NO_SOC; 2]),
+            volts: row.volts.map_or(f64::NAN, |v| v.0),
+            float_current_amperes: row.float_current.map_or(f64::NAN, |a| a.0),
         };
         self.offer_latest(&point, row);
         self.insert_history(point);
@@ -240,7 +253,7 @@ impl UnitSummary {
             _ => true,
         };
         if newer {
-            self.latest_row = Some(row);
+            self.latest_row = Some(Box::new(row));
         }
     }
 
@@ -293,7 +306,7 @@ impl UnitSummary {
         add_capacities(&mut self.capacities_ah, &other.capacities_ah);
         if let (Some(point), Some(row)) = (other.history.last(), other.latest_row) {
             let point = point.clone();
-            self.offer_latest(&point, row);
+            self.offer_latest(&point, *row);
         }
         for p in other.history {
             self.insert_history(p);
@@ -322,7 +335,7 @@ impl UnitSummary {
 
     /// The latest reading: its point in the history and its full row.
     pub fn latest(&self) -> Option<(&HistoryPoint, &FleetRow)> {
-        self.history.last().zip(self.latest_row.as_ref())
+        self.history.last().zip(self.latest_row.as_deref())
     }
 
     /// Readings in the kept history taken at the same time as another one.

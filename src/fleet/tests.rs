@@ -3,7 +3,7 @@
 //! The reference is always the plain one-pass, one-thread analysis of the
 //! same readings.
 
-use super::analysis::{finish, FleetSettings, FleetState};
+use super::analysis::{finish, finish_owned, FleetSettings, FleetState};
 use super::generate::{generate, GenerateOptions};
 use super::ingest::{IngestOptions, IngestStats, Parallelism};
 use crate::profile::store::ProfileStore;
@@ -227,5 +227,25 @@ fn parts_analysed_apart_and_merged_in_any_order_give_the_one_pass_report() {
             &format!("k = {k}, tree"),
         );
         assert_eq!(tree.rows_read, whole.rows_read);
+    }
+}
+
+#[test]
+fn judging_on_threads_while_taking_the_state_apart_gives_the_same_report() {
+    let store = ProfileStore::builtin().unwrap();
+    for (name, text) in [
+        ("generated.csv", generated(250, 5)),
+        (
+            "demo-data/fleet.csv",
+            include_bytes!("../../demo-data/fleet.csv").to_vec(),
+        ),
+    ] {
+        let (state, _) = one_pass(name, &text, &store);
+        let want = report_json(&state, &store);
+        for threads in [1, 2, 5] {
+            let got = finish_owned(state.clone(), &store, &FleetSettings::default(), threads);
+            let got = serde_json::to_string_pretty(&got).unwrap();
+            assert_same(&got, &want, &format!("{name}, {threads} threads"));
+        }
     }
 }
