@@ -185,6 +185,7 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         setup: args.instrument.setup()?,
         rules,
         min_temperature,
+        without_chart_history: args.format != FleetFormatArg::Html,
     };
     let opts = IngestOptions {
         default_profile: args.profile.clone(),

@@ -30,6 +30,10 @@ pub struct FleetSettings {
     pub rules: Rules,
     /// Coldest temperature expected (for freeze risk), besides the coldest seen.
     pub min_temperature: Option<Celsius>,
+    /// Leave out each unit's state-of-charge history ([`UnitReport::history`]),
+    /// which only the HTML report's charts draw: a tenth of a large report's
+    /// memory.
+    pub without_chart_history: bool,
 }
 
 /// The accumulating state of a fleet analysis: per-unit summaries by id.
@@ -955,12 +959,15 @@ fn judge_unit(
         }
     }
 
-    let history = s
-        .history
-        .iter()
-        .filter(|h| h.rested)
-        .filter_map(|h| Some((h.taken_at, h.soc_percent()?, h.soc_interval_percent()?)))
-        .collect();
+    let history = if settings.without_chart_history {
+        Vec::new()
+    } else {
+        s.history
+            .iter()
+            .filter(|h| h.rested)
+            .filter_map(|h| Some((h.taken_at, h.soc_percent()?, h.soc_interval_percent()?)))
+            .collect()
+    };
     let peer_key = ocv_cell.map(|_| {
         let group = match (&row.site, &row.string) {
             (Some(site), Some(st)) => format!("{site}/{st}"),
