@@ -157,13 +157,24 @@ fn demo_runs_with_no_arguments() {
 fn generated_fleet_round_trips_through_the_analysis() {
     let dir = tmp();
     let path = dir.path().join("gen.csv");
-    restvolt()
+    let truth = dir.path().join("truth.json");
+    let made = restvolt()
         .args([
             "generate", "--units", "300", "--days", "60", "--seed", "5", "-o",
         ])
         .arg(&path)
-        .assert()
-        .success();
+        .arg("--truth")
+        .arg(&truth)
+        .output()
+        .unwrap();
+    assert_eq!(made.status.code(), Some(0));
+    // stderr gives the counts; the unit-by-unit key goes to --truth only.
+    let note = String::from_utf8_lossy(&made.stderr);
+    assert!(
+        note.contains("\"units\":300") && !note.contains("faulty_units"),
+        "{note}"
+    );
+    let key: Value = serde_json::from_slice(&std::fs::read(&truth).unwrap()).unwrap();
     let out = restvolt()
         .args(["fleet", "--format", "json"])
         .arg(&path)
@@ -173,4 +184,26 @@ fn generated_fleet_round_trips_through_the_analysis() {
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["summary"]["units"], 300);
     assert_eq!(v["summary"]["rows_rejected"], 0);
+    // The faults the generator wrote are the ones the analysis finds, for
+    // the two that decide alone (a shorted cell, a probe off the post).
+    let action = |id: &str| {
+        v["units"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|u| u["unit_id"] == id)
+            .map(|u| u["action"].as_str().unwrap().to_string())
+    };
+    let faults = key["faulty_units"].as_object().unwrap();
+    let mut checked = 0;
+    for (id, fault) in faults {
+        let want = match fault.as_str().unwrap() {
+            "shorted-cell" => "replace",
+            "bad-connection" => "remeasure",
+            _ => continue,
+        };
+        assert_eq!(action(id).as_deref(), Some(want), "{id}: {fault}");
+        checked += 1;
+    }
+    assert!(checked >= 5, "only {checked} units checked");
 }

@@ -283,7 +283,7 @@ pub fn demo(args: DemoArgs, store: &ProfileStore) -> CmdResult {
 /// Arguments of `restvolt generate`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  restvolt generate --units 500 --days 180 --seed 1 -o fleet.csv\n  restvolt generate --units 50000 --days 140 --seed 7 -o big.csv"
+    after_help = "Examples:\n  restvolt generate --units 500 --days 180 --seed 1 -o fleet.csv --truth faults.json\n  restvolt generate --units 50000 --days 140 --seed 7 -o big.csv"
 )]
 pub struct GenerateArgs {
     /// Number of units
@@ -301,6 +301,9 @@ pub struct GenerateArgs {
     /// Output file (`-` or absent: standard output)
     #[arg(short, long, value_name = "PATH")]
     pub output: Option<PathBuf>,
+    /// Also write the answer key here: JSON with every faulty unit's fault
+    #[arg(long, value_name = "PATH")]
+    pub truth: Option<PathBuf>,
 }
 
 /// Run `restvolt generate`.
@@ -312,32 +315,29 @@ pub fn generate(args: GenerateArgs) -> CmdResult {
         seed: args.seed,
         readings_per_unit: args.readings_per_unit,
     };
-    match args.output.as_deref() {
-        Some(p) if p != Path::new("-") => {
-            let dir = p
-                .parent()
-                .filter(|d| !d.as_os_str().is_empty())
-                .unwrap_or(Path::new("."));
-            let tmp = dir.join(format!(".restvolt-generate-{}.tmp", std::process::id()));
-            let fail = |e: std::io::Error| CliError::fail(format!("writing {}: {e}", p.display()));
-            let f = std::fs::File::create(&tmp).map_err(fail)?;
-            let mut w = std::io::BufWriter::new(f);
-            let summary = generate(&opts, &mut w).map_err(fail)?;
-            std::io::Write::flush(&mut w).map_err(fail)?;
-            drop(w);
-            std::fs::rename(&tmp, p).map_err(fail)?;
-            let s = serde_json::to_string(&summary).map_err(CliError::fail)?;
-            eprintln!("restvolt: wrote {}: {s}", p.display());
-        }
-        _ => {
-            let out = std::io::stdout().lock();
-            let mut w = std::io::BufWriter::new(out);
-            match generate(&opts, &mut w).and_then(|_| std::io::Write::flush(&mut w)) {
-                Ok(()) => {}
-                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => {}
-                Err(e) => return Err(CliError::fail(e)),
-            }
-        }
+    let mut summary = None;
+    output::emit_with(args.output.as_deref(), &[], &mut |w| {
+        summary = Some(generate(&opts, w)?);
+        Ok(())
+    })?;
+    let Some(summary) = summary else {
+        return Ok(0);
+    };
+    if let Some(p) = args.output.as_deref().filter(|p| *p != Path::new("-")) {
+        // Counts only: the unit-by-unit answer key can be tens of thousands
+        // of entries, and goes to --truth.
+        let counts = serde_json::json!({
+            "units": summary.units,
+            "readings": summary.readings,
+            "by_fault": summary.by_fault,
+            "by_profile": summary.by_profile,
+        });
+        eprintln!("restvolt: wrote {}: {counts}", p.display());
+    }
+    if let Some(t) = &args.truth {
+        let key = serde_json::to_vec_pretty(&summary).map_err(CliError::fail)?;
+        let inputs: Vec<PathBuf> = args.output.iter().cloned().collect();
+        output::write_atomic(t, &key, &inputs)?;
     }
     Ok(0)
 }
