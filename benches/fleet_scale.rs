@@ -7,12 +7,13 @@
 //!
 //! The input is made by `restvolt generate` (seeded, so every run reads the
 //! same file) and cached in `target/bench-data/`. Each contender runs as its
-//! own process, alternately, `--runs` times (default 3); the median wall time
+//! own process, in turn, `--runs` times (default 3); the median wall time
 //! and the peak resident memory (from `wait4`) of each are printed, then the
 //! ratio. The baseline is this program re-run with `--baseline FILE`: it only
 //! parses the CSV with the csv crate (one reused `ByteRecord`) and converts
 //! every numeric field to a number, so the ratio says what the analysis costs
-//! on top of reading the data at all.
+//! on top of reading the data at all. The same analysis on one thread
+//! (`--threads 1`) is printed too, to show what the cores give.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -51,6 +52,7 @@ fn main() {
     let me = std::env::current_exe().unwrap_or_else(|e| fail(&e.to_string()));
     let mut base = Vec::new();
     let mut full = Vec::new();
+    let mut single = Vec::new();
     for _ in 0..runs {
         base.push(measure(Command::new(&me).arg("--baseline").arg(&file)));
         full.push(measure(
@@ -59,9 +61,16 @@ fn main() {
                 .arg(&file)
                 .args(["--format", "json"]),
         ));
+        single.push(measure(Command::new(&exe).arg("fleet").arg(&file).args([
+            "--format",
+            "json",
+            "--threads",
+            "1",
+        ])));
     }
     let (bt, bm) = median(&base);
     let (ft, fm) = median(&full);
+    let (st, sm) = median(&single);
     println!(
         "baseline  (csv parse only)        {:>8.3} s  peak RSS {:>7.1} MB",
         bt.as_secs_f64(),
@@ -71,6 +80,11 @@ fn main() {
         "restvolt fleet --format json      {:>8.3} s  peak RSS {:>7.1} MB",
         ft.as_secs_f64(),
         fm as f64 / 1e6
+    );
+    println!(
+        "restvolt fleet ... --threads 1     {:>8.3} s  peak RSS {:>7.1} MB",
+        st.as_secs_f64(),
+        sm as f64 / 1e6
     );
     println!(
         "ratio {:.2}x (target at most 1.30x), peak memory {:.1} MB (target under 150 MB)",

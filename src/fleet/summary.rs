@@ -253,7 +253,12 @@ impl UnitSummary {
             _ => true,
         };
         if newer {
-            self.latest_row = Some(Box::new(row));
+            // Rows mostly arrive in time order, so this runs for nearly every
+            // row: reuse the box rather than allocate one each time.
+            match &mut self.latest_row {
+                Some(kept) => **kept = row,
+                None => self.latest_row = Some(Box::new(row)),
+            }
         }
     }
 

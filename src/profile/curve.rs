@@ -43,7 +43,13 @@ pub struct MonotoneCurve {
     segments: Vec<[f64; 4]>,
     /// The same curve as a `splines` spline: the reference the fast path is tested against.
     spline: Spline<f64, f64>,
+    /// State of charge at [`INVERSE_TABLE_POINTS`] voltages evenly spaced
+    /// over the curve: Newton's first guess, so that it needs a step or two.
+    inverse_table: Vec<f64>,
 }
+
+/// Points of [`MonotoneCurve`]'s inverse table.
+const INVERSE_TABLE_POINTS: usize = 512;
 
 /// The `splines` crate's cubic Bézier, in its order of operations.
 fn bezier(nt: f64, [a, u, v, b]: [f64; 4]) -> f64 {
@@ -165,12 +171,23 @@ impl MonotoneCurve {
                 )
             })
             .collect();
-        Ok(MonotoneCurve {
+        let mut curve = MonotoneCurve {
             soc_percent: xs,
             volts_per_cell: ys,
             segments,
             spline: Spline::from_vec(keys),
-        })
+            inverse_table: Vec::new(),
+        };
+        let (v_lo, v_hi) = (curve.volts_min().0, curve.volts_max().0);
+        let last = INVERSE_TABLE_POINTS - 1;
+        curve.inverse_table = (0..=last)
+            .map(|k| match k {
+                0 => curve.soc_min().0,
+                k if k == last => curve.soc_max().0,
+                k => curve.solve(v_lo + (v_hi - v_lo) * k as f64 / last as f64, None),
+            })
+            .collect();
+        Ok(curve)
     }
 
     /// The curve's defining points.
@@ -246,14 +263,41 @@ impl MonotoneCurve {
                 beyond: (v > v_hi).then_some((CurveEnd::AboveFull, Volts(v - v_hi))),
             };
         }
-        // Bisection on a strictly increasing function: 60 halvings of ≤ 100 %
-        // reach 1e-16 %, far below any meaningful resolution.
+        let guess = self.guess_soc(v);
+        SocLookup {
+            soc: SocPercent(self.solve(v, guess)),
+            beyond: None,
+        }
+    }
+
+    /// A first guess at the state of charge for `v` (strictly inside the
+    /// curve's voltage range), from the table made at construction.
+    fn guess_soc(&self, v: f64) -> Option<f64> {
+        let t = &self.inverse_table;
+        if t.len() < 2 {
+            return None;
+        }
+        let (v_lo, v_hi) = (self.volts_min().0, self.volts_max().0);
+        let x = (v - v_lo) / (v_hi - v_lo) * (t.len() - 1) as f64;
+        let i = (x.floor().max(0.0) as usize).min(t.len() - 2);
+        let f = x - i as f64;
+        Some(t[i] + (t[i + 1] - t[i]) * f)
+    }
+
+    /// The state of charge whose voltage is `v` (strictly inside the range):
+    /// in the one segment that brackets it, safeguarded Newton steps from
+    /// `guess` (else from the segment's chord).
+    fn solve(&self, v: f64, guess: Option<f64>) -> f64 {
         let j = segment_of(&self.volts_per_cell, v);
         let seg = self.segments[j];
+        let (x0, x1) = (self.soc_percent[j], self.soc_percent[j + 1]);
         // The segment's Bézier is increasing in nt, so [lo, hi] always brackets
         // the root; a Newton step that leaves the bracket is replaced by bisection.
         let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
-        let mut nt = ((v - seg[0]) / (seg[3] - seg[0])).clamp(0.0, 1.0);
+        let chord = (v - seg[0]) / (seg[3] - seg[0]);
+        let mut nt = guess
+            .map_or(chord, |g| (g - x0) / (x1 - x0))
+            .clamp(0.0, 1.0);
         for _ in 0..64 {
             let f = bezier(nt, seg) - v;
             if f == 0.0 {
@@ -279,11 +323,7 @@ impl MonotoneCurve {
                 break;
             }
         }
-        let (x0, x1) = (self.soc_percent[j], self.soc_percent[j + 1]);
-        SocLookup {
-            soc: SocPercent(x0 + nt * (x1 - x0)),
-            beyond: None,
-        }
+        x0 + nt * (x1 - x0)
     }
 
     /// Slope dV/dSOC in volts per cell per percent at a state of charge (central difference).
