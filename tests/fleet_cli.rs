@@ -207,3 +207,65 @@ fn generated_fleet_round_trips_through_the_analysis() {
     }
     assert!(checked >= 5, "only {checked} units checked");
 }
+
+#[test]
+fn a_large_file_on_all_cores_gives_the_one_thread_report_and_no_stderr_when_piped() {
+    // Above the 8 MiB at which the fleet command reads on every core.
+    let dir = tmp();
+    let path = dir.path().join("large.csv");
+    restvolt()
+        .args(["generate", "--units", "4000", "--readings-per-unit", "20"])
+        .args(["--seed", "11", "-o"])
+        .arg(&path)
+        .assert()
+        .success();
+    assert!(std::fs::metadata(&path).unwrap().len() > 8 << 20);
+    let run = |threads: &str| {
+        let out = restvolt()
+            .args(["fleet", "--format", "json", "--threads", threads])
+            .arg(&path)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        // stderr is a pipe here, not a terminal: no progress bar, nothing at all.
+        assert!(
+            out.stderr.is_empty(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        out.stdout
+    };
+    let one = run("1");
+    assert_eq!(run("2"), one, "two threads and one give different reports");
+    let v: Value = serde_json::from_slice(&one).unwrap();
+    assert_eq!(v["summary"]["rows_read"], 80_000);
+}
+
+#[test]
+fn a_large_file_shows_a_progress_bar_when_stderr_is_a_terminal() {
+    // `script` (util-linux, essential on Debian) runs the command on a
+    // pseudo-terminal and copies what it shows; stdout goes to /dev/null.
+    let dir = tmp();
+    let path = dir.path().join("large.csv");
+    restvolt()
+        .args(["generate", "--units", "4000", "--readings-per-unit", "20"])
+        .args(["--seed", "12", "-o"])
+        .arg(&path)
+        .assert()
+        .success();
+    let cmd = format!(
+        "{} fleet '{}' --format json > /dev/null",
+        env!("CARGO_BIN_EXE_restvolt"),
+        path.display()
+    );
+    let out = std::process::Command::new("script")
+        .args(["-qec", &cmd, "/dev/null"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{out:?}");
+    let shown = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        shown.contains("reading") && shown.contains("MiB"),
+        "{shown}"
+    );
+}
