@@ -148,7 +148,7 @@ pub fn analyse_files(
             eprintln!("restvolt: note: {n}");
         }
     }
-    Ok(finish_owned(state, store, settings, 1))
+    Ok(finish_owned(state, store, settings))
 }
 
 /// A progress bar on standard error, only when it is a terminal.

@@ -518,69 +518,23 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
     rank(overview, judged, store, settings)
 }
 
-/// [`finish`], consuming the state and judging the units on `threads`
-/// threads. Each unit's summary is dropped once it is judged, so the state
-/// and the report are never both held whole; the report is the same.
+/// [`finish`], consuming the state: each unit's summary is dropped once it
+/// is judged, so the state and the report are never both held whole; the
+/// report is the same. (Units are judged on the calling thread: on worker
+/// threads glibc's per-thread arenas could not reuse the summaries' freed
+/// memory for the reports, and the peak rose by half.)
 pub fn finish_owned(
     state: FleetState,
     store: &ProfileStore,
     settings: &FleetSettings,
-    threads: usize,
 ) -> FleetReport {
     let overview = overview(&state, store, &settings.rules);
-    let units = state.units;
-    let judged = if threads <= 1 {
-        units
-            .into_iter()
-            .filter_map(|(id, s)| judge_unit(&id, &s, store, settings))
-            .collect()
-    } else {
-        judge_on_threads(units, store, settings, threads)
-    };
+    let judged = state
+        .units
+        .into_iter()
+        .filter_map(|(id, s)| judge_unit(&id, &s, store, settings))
+        .collect();
     rank(overview, judged, store, settings)
-}
-
-/// Judge units on worker threads fed from the map as it is taken apart.
-fn judge_on_threads(
-    units: BTreeMap<Arc<str>, UnitSummary>,
-    store: &ProfileStore,
-    settings: &FleetSettings,
-    threads: usize,
-) -> Vec<Judged> {
-    let (tx, rx) = std::sync::mpsc::sync_channel::<(Arc<str>, UnitSummary)>(256);
-    let rx = std::sync::Mutex::new(rx);
-    let mut judged: Vec<Judged> = std::thread::scope(|scope| {
-        let workers: Vec<_> = (0..threads)
-            .map(|_| {
-                let rx = &rx;
-                scope.spawn(move || {
-                    let mut out = Vec::new();
-                    loop {
-                        let next = match rx.lock() {
-                            Ok(rx) => rx.recv(),
-                            Err(_) => break,
-                        };
-                        let Ok((id, s)) = next else { break };
-                        out.extend(judge_unit(&id, &s, store, settings));
-                    }
-                    out
-                })
-            })
-            .collect();
-        for unit in units {
-            if tx.send(unit).is_err() {
-                break;
-            }
-        }
-        drop(tx);
-        workers
-            .into_iter()
-            .flat_map(|w| w.join().unwrap_or_default())
-            .collect()
-    });
-    // Back in the map's order, which the group rules below sum in.
-    judged.sort_by(|a, b| a.report.unit_id.cmp(&b.report.unit_id));
-    judged
 }
 
 /// The rules across units (peers, a string's hydrometer readings, float),
@@ -593,12 +547,7 @@ fn rank(
 ) -> FleetReport {
     let rules = &settings.rules;
     // Peers: same string (else same site) and profile, rested latest readings.
-    let mut groups: BTreeMap<(String, String), Vec<(usize, f64)>> = BTreeMap::new();
-    for (i, j) in judged.iter().enumerate() {
-        if let (Some(k), Some(v)) = (&j.peer_key, j.report.ocv_per_cell_25c_volts) {
-            groups.entry(k.clone()).or_default().push((i, v));
-        }
-    }
+    let groups = group_values(&judged, |j| (&j.peer_key, j.report.ocv_per_cell_25c_volts));
     for members in groups.values() {
         if members.len() < 4 {
             continue;
@@ -633,12 +582,7 @@ fn rank(
 
     // Hydrometer across a string of single cells: a cell more than the rule
     // below the string's mean (IEEE Std 450-1987 §4.4).
-    let mut sg_groups: BTreeMap<(String, String), Vec<(usize, f64)>> = BTreeMap::new();
-    for (i, j) in judged.iter().enumerate() {
-        if let (Some(k), Some(sg)) = (&j.sg_key, j.report.sg_mean_25c) {
-            sg_groups.entry(k.clone()).or_default().push((i, sg));
-        }
-    }
+    let sg_groups = group_values(&judged, |j| (&j.sg_key, j.report.sg_mean_25c));
     for members in sg_groups.values() {
         if members.len() < 3 {
             continue;
@@ -729,6 +673,22 @@ fn rank(
         rejected: overview.rejected,
         notices: overview.notices,
     }
+}
+
+/// Judged units with a group key and a value, as (index, value) by key.
+type Groups = BTreeMap<(String, String), Vec<(usize, f64)>>;
+
+fn group_values(
+    judged: &[Judged],
+    key_and_value: impl Fn(&Judged) -> (&Option<(String, String)>, Option<f64>),
+) -> Groups {
+    let mut groups = Groups::new();
+    for (i, j) in judged.iter().enumerate() {
+        if let (Some(k), Some(v)) = key_and_value(j) {
+            groups.entry(k.clone()).or_default().push((i, v));
+        }
+    }
+    groups
 }
 
 fn median_sorted(v: &[f64]) -> f64 {
