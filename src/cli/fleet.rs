@@ -76,7 +76,7 @@ pub struct FleetArgs {
     /// Fleet name for the report header
     #[arg(long, default_value = "Fleet")]
     pub name: String,
-    /// Threads for large inputs [default: one per core]
+    /// Threads for large inputs [default: one per core, at most 8]
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=1024))]
     pub threads: Option<u16>,
 }

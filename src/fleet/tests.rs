@@ -131,33 +131,45 @@ fn threads_and_chunks_give_the_one_thread_report() {
 #[test]
 fn an_input_error_is_the_one_thread_error() {
     let store = ProfileStore::builtin().unwrap();
+    let two_threads = |chunk_bytes| Parallelism {
+        threads: 2,
+        chunk_bytes,
+    };
     let mut text = generated(60, 4);
     // A Latin-1 degree sign in a record about two thirds of the way in.
     let at = text.len() * 2 / 3;
     let line_start = at + text[at..].iter().position(|&b| b == b'\n').unwrap() + 1;
     text.insert(line_start + 3, 0xB0);
-    let mut state = FleetState::default();
-    let want = state
+    let want = one_pass_error(&text, &store);
+    assert!(want.contains("not valid UTF-8"), "{want}");
+    for chunk_bytes in [200, 5000] {
+        let got = on_threads("f.csv", &text, &store, two_threads(chunk_bytes));
+        assert_eq!(got.map(|_| ()).unwrap_err(), want);
+    }
+
+    // A line longer than the reader's limit, after some good records.
+    let mut text = generated(20, 4);
+    text.extend(std::iter::repeat_n(
+        b'x',
+        super::ingest::MAX_LINE_BYTES as usize + 10,
+    ));
+    let want = one_pass_error(&text, &store);
+    assert!(want.contains("longer than"), "{want}");
+    let got = on_threads("f.csv", &text, &store, two_threads(4096));
+    assert_eq!(got.map(|_| ()).unwrap_err(), want);
+}
+
+fn one_pass_error(text: &[u8], store: &ProfileStore) -> String {
+    FleetState::default()
         .ingest(
             "f.csv",
-            &text[..],
+            text,
             &IngestOptions::default(),
-            &store,
+            store,
             &FleetSettings::default(),
         )
         .unwrap_err()
-        .to_string();
-    assert!(want.contains("not valid UTF-8"), "{want}");
-    for chunk_bytes in [200, 5000] {
-        let how = Parallelism {
-            threads: 2,
-            chunk_bytes,
-        };
-        let got = on_threads("f.csv", &text, &store, how)
-            .map(|_| ())
-            .unwrap_err();
-        assert_eq!(got, want);
-    }
+        .to_string()
 }
 
 /// Split the records of a CSV text among `k` parts at random (each part keeps

@@ -37,11 +37,18 @@ pub struct Parallelism {
     pub chunk_bytes: usize,
 }
 
+/// Workers by default at most: one thread folds every row into the
+/// summaries, at about a fifth of a worker's cost per row, so more workers
+/// than this only wait for it (and hold more chunks in memory).
+pub const MAX_DEFAULT_THREADS: usize = 8;
+
 impl Default for Parallelism {
-    /// One worker per core, chunks of [`CHUNK_BYTES`].
+    /// One worker per core up to [`MAX_DEFAULT_THREADS`], chunks of [`CHUNK_BYTES`].
     fn default() -> Parallelism {
         Parallelism {
-            threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
+            threads: std::thread::available_parallelism()
+                .map_or(1, |n| n.get())
+                .min(MAX_DEFAULT_THREADS),
             chunk_bytes: CHUNK_BYTES,
         }
     }
@@ -263,33 +270,27 @@ fn cut_chunks<R: Read>(
     let mut buf = start;
     let mut line = first_line;
     let mut eof = false;
+    // How much to hold before looking for a cut: a chunk, doubled each time
+    // no record end turns up, so that a long record costs linear, not
+    // quadratic, scanning.
+    let mut target = chunk_bytes;
     while !eof && !stop.load(Ordering::Relaxed) {
-        // Fill to a chunk beyond what is already held, so that a record
-        // longer than a chunk makes the buffer grow rather than spin.
-        let target = buf.len().max(chunk_bytes - chunk_bytes / 8) + chunk_bytes / 8;
-        while buf.len() < target {
-            let old = buf.len();
-            buf.resize(target, 0);
-            match reader.read(&mut buf[old..]) {
-                Ok(0) => {
-                    buf.truncate(old);
-                    eof = true;
-                    break;
-                }
-                Ok(n) => buf.truncate(old + n),
-                Err(e) if e.kind() == io::ErrorKind::Interrupted => buf.truncate(old),
-                Err(source) => {
-                    buf.truncate(old);
-                    let at = line + count_line_ends(&buf);
-                    return Err((
-                        at,
-                        IngestError::Io {
-                            file: name.to_string(),
-                            line: at,
-                            source,
-                        },
-                    ));
-                }
+        target = target.max(buf.len() + 1);
+        let want = target - buf.len();
+        // read_to_end grows the buffer as bytes come, without zero-filling
+        // ahead, and retries interrupted reads.
+        match (&mut reader).take(want as u64).read_to_end(&mut buf) {
+            Ok(n) => eof = n < want,
+            Err(source) => {
+                let at = line + count_line_ends(&buf);
+                return Err((
+                    at,
+                    IngestError::Io {
+                        file: name.to_string(),
+                        line: at,
+                        source,
+                    },
+                ));
             }
         }
         let cut = if eof {
@@ -300,6 +301,7 @@ fn cut_chunks<R: Read>(
         match cut {
             Some(0) => {}
             Some(cut) => {
+                target = chunk_bytes;
                 let rest = buf.split_off(cut);
                 let lines = count_line_ends(&buf);
                 let chunk = Chunk {
@@ -311,17 +313,24 @@ fn cut_chunks<R: Read>(
                     return Ok(());
                 }
             }
-            None if buf.len() as u64 > MAX_LINE_BYTES => {
-                return Err((
-                    line,
-                    IngestError::LineTooLong {
-                        file: name.to_string(),
-                        line,
-                        limit: MAX_LINE_BYTES,
-                    },
-                ));
+            None => {
+                // No record end yet: fail, as the one-thread reader does, only
+                // when one physical line is too long (a quoted field may run
+                // over many lines).
+                let run_start = memchr::memrchr2(b'\n', b'\r', &buf).map_or(0, |i| i + 1);
+                target = buf.len().saturating_mul(2);
+                if (buf.len() - run_start) as u64 > MAX_LINE_BYTES {
+                    let at = line + count_line_ends(&buf[..run_start]);
+                    return Err((
+                        at,
+                        IngestError::LineTooLong {
+                            file: name.to_string(),
+                            line: at,
+                            limit: MAX_LINE_BYTES,
+                        },
+                    ));
+                }
             }
-            None => {}
         }
     }
     Ok(())
