@@ -623,17 +623,10 @@ struct VoltsPart {
     budget: Budget,
 }
 
-/// Per-cell OCV at 25 °C from a unit reading, with the coefficient taken at
-/// the state of charge it implies (two passes converge well below a µV).
-fn to_25c(profile: &Profile, volts_per_cell: f64, t: Celsius) -> (f64, f64) {
-    let mut v25 = volts_per_cell;
-    let mut coef = 0.0;
-    for _ in 0..3 {
-        let soc = profile.soc_from_ocv25(Volts(v25)).soc;
-        coef = profile.ocv_coefficient(soc).0;
-        v25 = volts_per_cell - coef / 1000.0 * (t.0 - 25.0);
-    }
-    (v25, coef)
+/// Per-cell OCV at 25 °C from a unit reading of `cells` cells, with the
+/// coefficient taken at the state of charge it implies.
+fn to_25c(profile: &Profile, v: Volts, cells: u32, t: Celsius) -> crate::profile::Referred {
+    profile.refer_to_25c(Volts(v.0 / cells as f64), t)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -652,7 +645,8 @@ fn volts_path(
         return Err(CorrectError::NotFinite("voltage"));
     }
     let nf = n as f64;
-    let (v25, coef) = to_25c(profile, v.0 / nf, t);
+    let referred = to_25c(profile, v, n, t);
+    let (v25, coef) = (referred.ocv25.0, referred.coefficient.0);
     let correction_mv = (v25 - v.0 / nf) * nf * 1000.0;
 
     // GUM budget on the per-cell OCV at 25 °C.
@@ -724,7 +718,7 @@ fn volts_path(
     } else {
         (below / 1000.0, above / 1000.0)
     };
-    let lookup = profile.soc_from_ocv25(Volts(v25));
+    let lookup = referred.lookup;
     let lo = profile
         .soc_from_ocv25(Volts(v25 - u_exp - extra_below))
         .soc
@@ -758,7 +752,7 @@ fn volts_path(
 
 /// Does a per-cell voltage (for `k` cells) lie on the curve within the margins?
 fn fits(profile: &Profile, v: Volts, k: u32, t: Celsius, rules: &Rules) -> bool {
-    fits_at_25c(profile, to_25c(profile, v.0 / k as f64, t).0, rules)
+    fits_at_25c(profile, to_25c(profile, v, k, t).ocv25.0, rules)
 }
 
 /// [`fits`] for a per-cell OCV already referred to 25 °C.
@@ -821,10 +815,7 @@ fn plausibility(
     }
     let below = v25 < curve.volts_min().0;
     if below && n > 1 && fits(profile, v, n - 1, t, rules) {
-        let soc_fewer = profile
-            .soc_from_ocv25(Volts(to_25c(profile, v.0 / (n - 1) as f64, t).0))
-            .soc
-            .0;
+        let soc_fewer = to_25c(profile, v, n - 1, t).lookup.soc.0;
         flags.add(FlagCode::SuspectShortedCell, || format!(
                 "{:.2} V fits {} cells at {:.0} % but no charge of {} cells: one cell is likely shorted",
                 v.0,

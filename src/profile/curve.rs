@@ -240,10 +240,19 @@ impl MonotoneCurve {
     /// [`MonotoneCurve::volts_at`] by the segment table that the inverse
     /// searches; equal to the `splines` evaluation to the last bit (tested).
     fn volts_by_segments(&self, soc: SocPercent) -> Volts {
+        Volts(self.volts_and_slope(soc).0)
+    }
+
+    /// Volts per cell and its slope dV/dSOC (V per %) at a state of charge
+    /// (clamped to the curve), from the segment table: the fast form of
+    /// [`MonotoneCurve::volts_at`] for solvers.
+    pub(crate) fn volts_and_slope(&self, soc: SocPercent) -> (f64, f64) {
         let s = soc.0.clamp(self.soc_min().0, self.soc_max().0);
         let i = segment_of(&self.soc_percent, s);
-        let nt = (s - self.soc_percent[i]) / (self.soc_percent[i + 1] - self.soc_percent[i]);
-        Volts(bezier(nt, self.segments[i]))
+        let h = self.soc_percent[i + 1] - self.soc_percent[i];
+        let nt = (s - self.soc_percent[i]) / h;
+        let seg = self.segments[i];
+        (bezier(nt, seg), bezier_slope(nt, seg) / h)
     }
 
     /// State of charge for an OCV per cell at 25 °C; beyond the ends it clamps
@@ -272,14 +281,15 @@ impl MonotoneCurve {
 
     /// A first guess at the state of charge for `v` (strictly inside the
     /// curve's voltage range), from the table made at construction.
-    fn guess_soc(&self, v: f64) -> Option<f64> {
+    pub(crate) fn guess_soc(&self, v: f64) -> Option<f64> {
         let t = &self.inverse_table;
         if t.len() < 2 {
             return None;
         }
         let (v_lo, v_hi) = (self.volts_min().0, self.volts_max().0);
-        let x = (v - v_lo) / (v_hi - v_lo) * (t.len() - 1) as f64;
-        let i = (x.floor().max(0.0) as usize).min(t.len() - 2);
+        let last = (t.len() - 1) as f64;
+        let x = ((v - v_lo) / (v_hi - v_lo) * last).clamp(0.0, last);
+        let i = (x.floor() as usize).min(t.len() - 2);
         let f = x - i as f64;
         Some(t[i] + (t[i + 1] - t[i]) * f)
     }

@@ -93,6 +93,17 @@ pub struct Profile {
     coefficient_table_mv_per_k: Vec<f64>,
 }
 
+/// A rest voltage referred to 25 °C by [`Profile::refer_to_25c`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Referred {
+    /// The state of charge it gives (clamped at the curve's ends, with by how much beyond).
+    pub lookup: SocLookup,
+    /// The per-cell open-circuit voltage at 25 °C.
+    pub ocv25: Volts,
+    /// The temperature coefficient used, at that state of charge.
+    pub coefficient: MillivoltsPerKelvin,
+}
+
 /// Spacing of the tabulated temperature coefficient, in percent of charge.
 const COEFFICIENT_STEP_PERCENT: f64 = 0.1;
 
@@ -248,6 +259,93 @@ impl Profile {
     /// State of charge from an OCV per cell already referred to 25 °C.
     pub fn soc_from_ocv25(&self, volts_per_cell: Volts) -> SocLookup {
         self.curve.soc_at(volts_per_cell)
+    }
+
+    /// A rest voltage per cell read at `t`, referred to 25 °C: the state of
+    /// charge `s` whose open-circuit voltage at `t` is the reading, that is
+    /// `V25(s) + k(s)·(t − 25 °C) = v` with `k` the coefficient at `s`, and
+    /// then `v − k(s)·(t − 25 °C)`. Solved as one equation (Newton steps kept
+    /// inside a bracket), to 1e-10 % of charge. Beyond the curve's ends the
+    /// state of charge clamps and the coefficient is the end's.
+    pub fn refer_to_25c(&self, volts_per_cell: Volts, t: Celsius) -> Referred {
+        let v = volts_per_cell.0;
+        let dt = (t.0 - 25.0) / 1000.0;
+        let (s_lo, s_hi) = (self.curve.soc_min().0, self.curve.soc_max().0);
+        let at_end = |s: f64| {
+            let coefficient = self.ocv_coefficient(SocPercent(s));
+            let ocv25 = Volts(v - coefficient.0 * dt);
+            Referred {
+                lookup: self.curve.soc_at(ocv25),
+                ocv25,
+                coefficient,
+            }
+        };
+        // g(s) = V25(s) + k(s)·dt − v rises with s (the load check keeps the
+        // curve increasing at field temperatures); its sign at the ends says
+        // whether the reading lies on the curve at all.
+        let g = |s: f64| {
+            let (v25, slope) = self.curve.volts_and_slope(SocPercent(s));
+            let (k, k_slope) = self.coefficient_and_slope(s);
+            (v25 + k * dt - v, slope + k_slope * dt)
+        };
+        if v.is_nan() || g(s_lo).0 >= 0.0 {
+            return at_end(s_lo);
+        }
+        if g(s_hi).0 <= 0.0 {
+            return at_end(s_hi);
+        }
+        let raw = self.curve.guess_soc(v).unwrap_or(0.5 * (s_lo + s_hi));
+        let first_k = self.ocv_coefficient(SocPercent(raw)).0;
+        let mut s = self
+            .curve
+            .guess_soc(v - first_k * dt)
+            .unwrap_or(raw)
+            .clamp(s_lo, s_hi);
+        let (mut lo, mut hi) = (s_lo, s_hi);
+        for _ in 0..100 {
+            let (f, d) = g(s);
+            if f == 0.0 {
+                break;
+            }
+            if f < 0.0 {
+                lo = s;
+            } else {
+                hi = s;
+            }
+            let newton = s - f / d;
+            let next = if d > 0.0 && newton > lo && newton < hi {
+                newton
+            } else {
+                0.5 * (lo + hi)
+            };
+            let done = (next - s).abs() <= 1e-10 || hi - lo <= 1e-10;
+            s = next;
+            if done {
+                break;
+            }
+        }
+        let coefficient = self.ocv_coefficient(SocPercent(s));
+        Referred {
+            lookup: SocLookup {
+                soc: SocPercent(s),
+                beyond: None,
+            },
+            ocv25: Volts(v - coefficient.0 * dt),
+            coefficient,
+        }
+    }
+
+    /// The coefficient (mV/K) and its slope with charge (mV/K per %): the
+    /// tabulated coefficient is piecewise linear, a fixed one flat.
+    fn coefficient_and_slope(&self, soc: f64) -> (f64, f64) {
+        let table = &self.coefficient_table_mv_per_k;
+        if table.len() < 2 {
+            return (self.ocv_coefficient_from_model(SocPercent(soc)).0, 0.0);
+        }
+        let x = soc.clamp(0.0, 100.0) / COEFFICIENT_STEP_PERCENT;
+        let i = (x.floor() as usize).min(table.len() - 2);
+        let slope = (table[i + 1] - table[i]) / COEFFICIENT_STEP_PERCENT;
+        (table[i] + (table[i + 1] - table[i]) * (x - i as f64), slope)
     }
 
     /// Freezing point of the electrolyte at a state of charge.
@@ -626,6 +724,40 @@ mod tests {
             .get("flooded-automotive")
             .unwrap()
             .clone()
+    }
+
+    #[test]
+    fn referring_to_25c_solves_the_temperature_equation() {
+        // Derived: the state of charge found must give back the reading
+        // through the forward model, V25(s) + k(s)·(t − 25) = v, and the
+        // referred voltage must be v − k(s)·(t − 25).
+        for p in ProfileStore::builtin().unwrap().iter() {
+            let (v_lo, v_hi) = (p.curve().volts_min().0, p.curve().volts_max().0);
+            for t in [-30.0, -5.0, 10.0, 25.0, 40.0, 50.0] {
+                for i in 0..=200 {
+                    let v = v_lo - 0.05 + (v_hi - v_lo + 0.1) * i as f64 / 200.0;
+                    let r = p.refer_to_25c(Volts(v), Celsius(t));
+                    let s = r.lookup.soc;
+                    let k = p.ocv_coefficient(s).0;
+                    assert!((r.ocv25.0 - (v - k * (t - 25.0) / 1000.0)).abs() < 1e-12);
+                    match r.lookup.beyond {
+                        None => {
+                            let back = p.ocv_per_cell_at(s, Celsius(t)).0;
+                            assert!((back - v).abs() < 1e-9, "{} {t} °C {v} V: {back}", p.id());
+                        }
+                        // Beyond an end: clamped, and the referred voltage lies beyond it.
+                        Some((curve::CurveEnd::BelowEmpty, by)) => {
+                            assert_eq!(s, p.curve().soc_min());
+                            assert!((r.ocv25.0 + by.0 - v_lo).abs() < 1e-12);
+                        }
+                        Some((curve::CurveEnd::AboveFull, by)) => {
+                            assert_eq!(s, p.curve().soc_max());
+                            assert!((r.ocv25.0 - by.0 - v_hi).abs() < 1e-12);
+                        }
+                    }
+                }
+            }
+        }
     }
 
     #[test]
