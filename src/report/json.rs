@@ -72,8 +72,12 @@ impl FleetFormat for Json {
         _ctx: &ReportContext,
         out: &mut dyn std::io::Write,
     ) -> std::io::Result<()> {
-        serde_json::to_writer_pretty(&mut *out, report).map_err(std::io::Error::other)?;
-        out.write_all(b"\n")
+        // A buffer of its own type: the serializer's many small writes then
+        // stay in inlined code instead of each going through `dyn Write`.
+        let mut w = std::io::BufWriter::with_capacity(1 << 16, out);
+        serde_json::to_writer_pretty(&mut w, report).map_err(std::io::Error::other)?;
+        std::io::Write::write_all(&mut w, b"\n")?;
+        std::io::Write::flush(&mut w)
     }
 
     fn render(&self, report: &FleetReport, _ctx: &ReportContext) -> String {
