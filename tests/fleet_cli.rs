@@ -269,3 +269,45 @@ fn a_large_file_shows_a_progress_bar_when_stderr_is_a_terminal() {
         "{shown}"
     );
 }
+
+#[test]
+fn a_reader_that_leaves_early_ends_the_run_quietly() {
+    // `restvolt fleet big.csv | head`: once head has its lines it closes the
+    // pipe; restvolt must stop without a message and without failing.
+    use std::io::Read;
+    let dir = tmp();
+    let path = dir.path().join("big.csv");
+    restvolt()
+        .args(["generate", "--units", "3000", "--seed", "3", "-o"])
+        .arg(&path)
+        .assert()
+        .success();
+    for (format, starts) in [
+        ("csv", "rank,unit_id"),
+        ("json", "{"),
+        ("table", "Fleet report"),
+    ] {
+        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_restvolt"))
+            .args(["fleet", "--format", format])
+            .arg(&path)
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut first = [0u8; 512];
+        let mut stdout = child.stdout.take().unwrap();
+        stdout.read_exact(&mut first).unwrap();
+        drop(stdout);
+        let out = child.wait_with_output().unwrap();
+        assert!(
+            String::from_utf8_lossy(&first).starts_with(starts),
+            "{format}"
+        );
+        assert_eq!(out.status.code(), Some(0), "{format}: {out:?}");
+        assert!(
+            out.stderr.is_empty(),
+            "{format}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+}

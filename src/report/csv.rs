@@ -69,7 +69,7 @@ impl FleetFormat for Csv {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
             .from_writer(out);
-        w.write_record(COLUMNS)?;
+        w.write_record(COLUMNS).map_err(io_error)?;
         for u in &report.units {
             let [lo, hi] = u
                 .soc_interval_percent
@@ -101,9 +101,18 @@ impl FleetFormat for Csv {
                 u.readings.to_string(),
                 u.latest_at.clone(),
             ];
-            w.write_record(&record)?;
+            w.write_record(&record).map_err(io_error)?;
         }
         w.flush()
+    }
+}
+
+/// The writer's own error out of a csv error, so that a broken pipe stays
+/// one (csv's conversion to `io::Error` would make it "other").
+fn io_error(e: ::csv::Error) -> std::io::Error {
+    match e.into_kind() {
+        ::csv::ErrorKind::Io(e) => e,
+        other => std::io::Error::other(format!("{other:?}")),
     }
 }
 

@@ -75,7 +75,8 @@ impl FleetFormat for Json {
         // A buffer of its own type: the serializer's many small writes then
         // stay in inlined code instead of each going through `dyn Write`.
         let mut w = std::io::BufWriter::with_capacity(1 << 16, out);
-        serde_json::to_writer_pretty(&mut w, report).map_err(std::io::Error::other)?;
+        // serde_json gives back the writer's own error (a broken pipe stays one).
+        serde_json::to_writer_pretty(&mut w, report).map_err(std::io::Error::from)?;
         std::io::Write::write_all(&mut w, b"\n")?;
         std::io::Write::flush(&mut w)
     }
