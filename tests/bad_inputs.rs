@@ -669,7 +669,12 @@ const CASES: &[Case] = &[
     case(
         &["fleet", "@fleet-bom.csv", "--profile", "agn"],
         2,
-        &["unknown profile 'agn'", "did you mean 'agm'"],
+        &["--profile: unknown profile 'agn'", "did you mean 'agm'"],
+    ),
+    case(
+        &["fleet", "@fleet-bom.csv", "--profile", "no-such-kind"],
+        2,
+        &["--profile: unknown profile 'no-such-kind'", "`restvolt profiles list` shows the ids"],
     ),
     case(&["fleet", "@no-such-fleet.csv"], 1, &["no-such-fleet.csv", "No such file"]),
     // ---- calibrate
