@@ -499,6 +499,18 @@ const CASES: &[Case] = &[
         ],
     ),
     // Two 12 V blocks in series read on a 6-cell profile: no state of charge for it.
+    // A reading dated 2099: the year or the meter's clock is wrong.
+    case(
+        &["settle", "@settle-future.csv", "--ended-at", "2026-11-30 14:05"],
+        2,
+        &[
+            "settle-future.csv:3",
+            "column 'taken_at'",
+            "'2099-11-30 14:25'",
+            "at most a day after now",
+            "cannot be taken in the future",
+        ],
+    ),
     case(
         &["settle", "@settle-24v.csv", "--after", "charge"],
         1,
