@@ -499,6 +499,18 @@ const CASES: &[Case] = &[
         ],
     ),
     // Two 12 V blocks in series read on a 6-cell profile: no state of charge for it.
+    // A reading dated 2099: the year or the meter's clock is wrong.
+    case(
+        &["settle", "@settle-future.csv", "--ended-at", "2026-11-30 14:05"],
+        2,
+        &[
+            "settle-future.csv:3",
+            "column 'taken_at'",
+            "'2099-11-30 14:25'",
+            "at most a day after now",
+            "cannot be taken in the future",
+        ],
+    ),
     case(
         &["settle", "@settle-24v.csv", "--after", "charge"],
         1,
@@ -669,7 +681,12 @@ const CASES: &[Case] = &[
     case(
         &["fleet", "@fleet-bom.csv", "--profile", "agn"],
         2,
-        &["unknown profile 'agn'", "did you mean 'agm'"],
+        &["--profile: unknown profile 'agn'", "did you mean 'agm'"],
+    ),
+    case(
+        &["fleet", "@fleet-bom.csv", "--profile", "no-such-kind"],
+        2,
+        &["--profile: unknown profile 'no-such-kind'", "`restvolt profiles list` shows the ids"],
     ),
     case(&["fleet", "@no-such-fleet.csv"], 1, &["no-such-fleet.csv", "No such file"]),
     // ---- calibrate

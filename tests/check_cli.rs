@@ -277,12 +277,9 @@ fn text_output_is_phone_sized_at_the_top() {
     assert_eq!(r.code, Some(0), "{}", r.stderr);
     let widths: Vec<usize> = r.stdout.lines().map(|l| l.chars().count()).collect();
     let max = widths.iter().copied().max().unwrap_or(0);
-    // Recorded, not asserted: the reasons' sources and the cautions run long
-    // (265 characters when written); the head of the report is what fits a phone.
-    println!(
-        "check text: {} lines, widest {max} characters",
-        widths.len()
-    );
+    // The head fits a phone (60 columns); the free text below it (sources,
+    // cautions, up to 265 characters as written) wraps at 80 off a terminal.
+    assert!(max <= 80, "widest line {max} characters:\n{}", r.stdout);
     assert!(widths.len() >= 8, "{}", r.stdout);
     for (i, (line, w)) in r.stdout.lines().zip(&widths).take(8).enumerate() {
         assert!(*w <= 60, "line {} is {w} characters: '{line}'", i + 1);
@@ -293,4 +290,186 @@ fn text_output_is_phone_sized_at_the_top() {
         "{}",
         r.stdout
     );
+}
+
+/// The texts a `check` report must print, in print order, from its JSON: each
+/// flag's detail, each reason's rule, detail and source, each caution's text.
+fn report_phrases(v: &serde_json::Value) -> Vec<String> {
+    let list = |key: &str| v[key].as_array().cloned().unwrap_or_default();
+    let text = |x: &serde_json::Value| x.as_str().unwrap_or("").to_string();
+    let mut out = Vec::new();
+    for f in list("flags") {
+        out.push(format!("{}: {}", text(&f["code"]), text(&f["detail"])));
+    }
+    for r in list("reasons") {
+        out.push(format!(
+            "{} ({}): {}",
+            text(&r["rule"]),
+            text(&r["action"]),
+            text(&r["detail"])
+        ));
+        out.push(format!("source: {}", text(&r["source"])));
+    }
+    for c in list("cautions") {
+        let id = text(&c);
+        for k in restvolt::safety::Caution::ALL {
+            if serde_json::to_value(k)
+                .ok()
+                .and_then(|x| x.as_str().map(String::from))
+                == Some(id.clone())
+            {
+                let t = restvolt::safety::caution_text(k);
+                out.push(format!("{}: {}", t.title, t.text));
+            }
+        }
+    }
+    out
+}
+
+/// Whether the words of every phrase appear in `text`, each phrase's words
+/// together and the phrases in order, whatever the line breaks between them.
+fn words_in_order(text: &str, phrases: &[String]) -> Result<(), String> {
+    let words: Vec<&str> = text.split_whitespace().collect();
+    let mut from = 0;
+    for p in phrases {
+        let want: Vec<&str> = p.split_whitespace().collect();
+        let at = (from..=words.len().saturating_sub(want.len()))
+            .find(|&i| words[i..].starts_with(&want))
+            .ok_or_else(|| format!("'{p}' is not in the text (in order) after word {from}"))?;
+        from = at + want.len();
+    }
+    Ok(())
+}
+
+/// The argument lists of a long-source `check` (sources of 104 and 159
+/// characters, a 265-character caution) and of a long `check --float`.
+const LONG_CASES: [&[&str]; 2] = [
+    &["check", "--volts", "12.2", "--temp", "-5C", "--rest", "40m"],
+    &[
+        "check",
+        "--volts",
+        "14.2",
+        "--float",
+        "--profile",
+        "agm",
+        "--temp",
+        "40C",
+    ],
+];
+
+#[test]
+fn long_sources_and_cautions_wrap_at_80_columns_under_their_bullet() {
+    let args = LONG_CASES[0];
+    let r = run(args);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    for l in r.stdout.lines() {
+        assert!(
+            l.chars().count() <= 80,
+            "{} characters: '{l}'",
+            l.chars().count()
+        );
+    }
+    let mut json_args = args.to_vec();
+    json_args.extend(["--format", "json"]);
+    let v = json(&json_args);
+    let phrases = report_phrases(&v);
+    // The case is a long one: unwrapped, a source line would exceed 80 columns.
+    assert!(
+        phrases
+            .iter()
+            .any(|p| p.starts_with("source: ") && p.chars().count() + 4 > 80),
+        "{phrases:?}"
+    );
+    assert!(
+        phrases.iter().any(|p| p.chars().count() > 200),
+        "{phrases:?}"
+    );
+    words_in_order(&r.stdout, &phrases).unwrap_or_else(|e| panic!("{e}:\n{}", r.stdout));
+    // Continuation lines sit under their bullet's text: below "Cautions" every
+    // line is a bullet "  ! " or indented four spaces, up to the meter line.
+    let cautions: Vec<&str> = r
+        .stdout
+        .lines()
+        .skip_while(|l| *l != "Cautions")
+        .skip(1)
+        .take_while(|l| !l.starts_with("Meter "))
+        .collect();
+    assert!(
+        cautions.len() > v["cautions"].as_array().map_or(0, Vec::len),
+        "{}",
+        r.stdout
+    );
+    for l in &cautions {
+        assert!(
+            l.starts_with("  ! ") || l.starts_with("    ") && !l[4..].starts_with(' '),
+            "'{l}'"
+        );
+    }
+    // A wrapped source continues under "source:", two spaces in from it.
+    let lines: Vec<&str> = r.stdout.lines().collect();
+    let i = lines
+        .iter()
+        .position(|l| l.starts_with("    source: "))
+        .expect("a source line");
+    assert!(
+        lines[i + 1].starts_with("      ") && !lines[i + 1][6..].starts_with(' '),
+        "{}",
+        r.stdout
+    );
+}
+
+#[test]
+fn float_check_text_wraps_at_80_columns_too() {
+    let r = run(LONG_CASES[1]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    for l in r.stdout.lines() {
+        assert!(
+            l.chars().count() <= 80,
+            "{} characters: '{l}'",
+            l.chars().count()
+        );
+    }
+    let mut json_args = LONG_CASES[1].to_vec();
+    json_args.extend(["--format", "json"]);
+    let phrases = report_phrases(&json(&json_args));
+    assert!(phrases.len() >= 4, "{phrases:?}");
+    words_in_order(&r.stdout, &phrases).unwrap_or_else(|e| panic!("{e}:\n{}", r.stdout));
+}
+
+#[test]
+fn on_a_terminal_the_text_wraps_to_its_width() {
+    // `script` (util-linux, essential on Debian) runs the command on a
+    // pseudo-terminal set to 50 columns; stdout is then a terminal.
+    let args = LONG_CASES[0].join(" ");
+    let cmd = format!(
+        "stty cols 50 rows 40; {} {args}",
+        env!("CARGO_BIN_EXE_restvolt")
+    );
+    let out = std::process::Command::new("script")
+        .args(["-qec", &cmd, "/dev/null"])
+        .env_remove("RESTVOLT_PROFILES")
+        .env("NO_COLOR", "1")
+        .output()
+        .expect("script");
+    assert!(out.status.success(), "{out:?}");
+    // The terminal turns each \n into \r\n.
+    let shown = String::from_utf8_lossy(&out.stdout).replace('\r', "");
+    assert!(shown.contains("Cautions"), "{shown}");
+    for l in shown.lines() {
+        assert!(
+            l.chars().count() <= 50,
+            "{} characters: '{l}'",
+            l.chars().count()
+        );
+    }
+    // The same words as off the terminal, in the same order (the clock time
+    // to measure again may have moved on by a minute between the two runs).
+    let piped = run(LONG_CASES[0]);
+    let words = |t: &str| -> Vec<String> {
+        t.split_whitespace()
+            .filter(|w| !(w.len() == 5 && w.as_bytes()[2] == b':'))
+            .map(String::from)
+            .collect()
+    };
+    assert_eq!(words(&shown), words(&piped.stdout), "{shown}");
 }

@@ -323,7 +323,7 @@ proptest! {
     fn the_settle_reader_never_panics(pick in 0usize..4, body in texty_bytes(400), end in any::<bool>()) {
         let bytes = with_header(&SETTLE_HEADERS, pick, body);
         let end = end.then(|| chrono::NaiveDate::from_ymd_opt(2026, 1, 1).unwrap().and_hms_opt(0, 0, 0).unwrap());
-        if let Ok(readings) = restvolt::settle::read_rest_csv(bytes.as_slice(), "x.csv", end) {
+        if let Ok(readings) = restvolt::settle::read_rest_csv(bytes.as_slice(), "x.csv", end, None) {
             let _ = restvolt::settle::analyse(&restvolt::settle::points(&readings), &Default::default());
         }
     }

@@ -41,8 +41,11 @@
 //!    point and refitting (O(n²) curve evaluations). Dividing by n − k, with k
 //!    the number of levels, overstated the SD by 10–25 % in simulation, because
 //!    the cubic between block centres is smoother than the isotonic steps.
-//!    The SD is written as `tolerance.curve_mv_per_cell`; with ν < 0.5 (the
-//!    curve passes through the points) the base profile's tolerance is kept.
+//!    `tolerance.curve_mv_per_cell` is the half-width of a rectangular
+//!    distribution (the corrector takes half-width/√3 as its standard
+//!    uncertainty, GUM JCGM 100:2008 §4.3.7), so √3 × SD is written: its
+//!    rectangular standard uncertainty is the SD. With ν < 0.5 (the curve
+//!    passes through the points) the base profile's tolerance is kept.
 
 pub mod fit;
 pub mod input;
@@ -395,10 +398,13 @@ pub fn calibrate(
 
     let mut warnings = Vec::new();
     let (tolerance, tolerance_source) = match residual_sd {
+        // The profile holds a rectangular half-width (the corrector divides it
+        // by √3), so the SD is written as the half-width whose rectangular
+        // standard uncertainty equals it.
         Some(sd) => (
-            sd,
+            Millivolts(sd.0 * 3f64.sqrt()),
             format!(
-                "derived: calibration residual SD {:.2} mV per cell over {n} points ({residual_df:.1} residual degrees of freedom), {file} on {}",
+                "derived: half-width √3 × {:.2} mV per cell, the calibration residual SD over {n} points ({residual_df:.1} residual degrees of freedom), {file} on {}, so that its rectangular standard uncertainty (half-width/√3, GUM JCGM 100:2008 §4.3.7) equals the SD",
                 sd.0, opts.today
             ),
         ),

@@ -77,7 +77,9 @@ pub struct CalibrationReport {
     pub residual_degrees_of_freedom: f64,
     /// Standard deviation of the residuals, sqrt(Σr² / ν); `None` when ν < 0.5.
     pub residual_sd_mv_per_cell: Option<Millivolts>,
-    /// The value written as the new profile's `tolerance.curve_mv_per_cell`.
+    /// The value written as the new profile's `tolerance.curve_mv_per_cell`: a
+    /// rectangular half-width, √3 × the residual SD (or the base's value when
+    /// there is no SD).
     pub tolerance_mv_per_cell: Millivolts,
     /// The new profile's curve points `[soc_percent, volts_per_cell]`.
     pub curve_points: Vec<[f64; 2]>,
@@ -146,11 +148,22 @@ impl CalibrationReport {
                 );
             }
         }
-        let _ = writeln!(
-            s,
-            "Tolerance written: {:.1} mV per cell",
-            self.tolerance_mv_per_cell.0
-        );
+        match self.residual_sd_mv_per_cell {
+            Some(sd) => {
+                let _ = writeln!(
+                    s,
+                    "Tolerance written: ±{:.1} mV per cell rectangular half-width (√3 × SD {:.1}, so its standard uncertainty, half-width/√3, is the SD)",
+                    self.tolerance_mv_per_cell.0, sd.0
+                );
+            }
+            None => {
+                let _ = writeln!(
+                    s,
+                    "Tolerance written: ±{:.1} mV per cell rectangular half-width (the base profile's)",
+                    self.tolerance_mv_per_cell.0
+                );
+            }
+        }
         for w in &self.warnings {
             let _ = writeln!(s, "warning: {w}");
         }

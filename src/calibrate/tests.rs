@@ -53,7 +53,11 @@ fn check_recovery(sigma_mv: f64, seeds: &[u64]) -> Vec<f64> {
             "σ {sigma_mv} mV, seed {seed}: worst error {worst:.1} mV"
         );
         let sd = cal.report.residual_sd_mv_per_cell.unwrap().0;
-        assert_eq!(cal.profile.tolerance.curve_mv_per_cell.value, sd);
+        // The profile holds a rectangular half-width; its standard uncertainty
+        // half-width/√3 (GUM JCGM 100:2008 §4.3.7, published) is the SD.
+        let tol = cal.profile.tolerance.curve_mv_per_cell.value;
+        assert!((tol / 3f64.sqrt() - sd).abs() < 1e-9, "{tol} vs SD {sd}");
+        assert_eq!(cal.report.tolerance_mv_per_cell.0, tol);
         sds.push(sd);
     }
     sds
@@ -91,6 +95,41 @@ fn noisy_points_recover_the_truth_at_8_mv() {
 fn noisy_points_recover_the_truth_at_15_mv() {
     let seeds: Vec<u64> = (101..=110).collect();
     check_sd(15.0, &check_recovery(15.0, &seeds));
+}
+
+#[test]
+fn the_written_tolerance_carries_the_noise_as_a_rectangular_half_width() {
+    // The corrector takes `tolerance.curve_mv_per_cell` as the half-width of a
+    // rectangular distribution, standard uncertainty half-width/√3 (GUM JCGM
+    // 100:2008 §4.3.7, published; src/correct/assess.rs). Calibrating points
+    // with a known Gaussian σ must therefore write about √3 σ, so that the
+    // profile's standard uncertainty is σ again. 20 %: the SD from 40 points
+    // scatters about 11 % (derived, normal theory), as in `check_sd`.
+    let truth = base("flooded-automotive");
+    for (sigma_mv, seed) in [(8.0, 1), (15.0, 101)] {
+        let pts = noisy_points(&truth, sigma_mv, seed);
+        let cal = calibrate(&pts, &truth, &opts("noisy.csv", b"x")).unwrap();
+        let text = cal.to_toml().unwrap();
+        let loaded = Profile::from_toml(&text, "out.toml").unwrap();
+        let tol = loaded.spec.tolerance.curve_mv_per_cell.value;
+        let u = crate::correct::uncertainty::rectangular(tol);
+        assert!(
+            (u - sigma_mv).abs() <= 0.2 * sigma_mv,
+            "σ {sigma_mv} mV: written {tol:.2} mV, standard uncertainty {u:.2} mV"
+        );
+        let source = &loaded.spec.tolerance.curve_mv_per_cell.source;
+        assert!(
+            source.contains("√3") && source.contains("rectangular") && source.contains("GUM"),
+            "{source}"
+        );
+        let report = cal.report.render_text();
+        assert!(
+            report.contains(&format!(
+                "Tolerance written: ±{tol:.1} mV per cell rectangular half-width (√3 × SD"
+            )),
+            "{report}"
+        );
+    }
 }
 
 /// Points exactly on a curve (no noise), one per SOC value.
@@ -189,7 +228,7 @@ fn output_toml_loads_and_carries_provenance() {
         .tolerance
         .curve_mv_per_cell
         .source
-        .starts_with("derived: calibration residual SD"));
+        .starts_with("derived: half-width √3 × "));
     assert!(loaded
         .spec
         .curve

@@ -352,7 +352,13 @@ pub fn run(args: CheckArgs, store: &ProfileStore) -> CmdResult {
             s.push('\n');
             s
         }
-        OneFormat::Text => render_text(&a, &setup, profile.spec.name.as_str(), now),
+        OneFormat::Text => render_text(
+            &a,
+            &setup,
+            profile.spec.name.as_str(),
+            now,
+            output::stdout_columns(),
+        ),
     };
     output::emit(None, text.as_bytes(), &[])?;
     Ok(0)
@@ -424,13 +430,19 @@ pub fn gauge(soc: f64, interval: [f64; 2]) -> String {
     format!("[{body}]")
 }
 
-/// The short text report.
+/// The short text report. The head (charge, gauge, rest) fits a phone; the
+/// free text below (flags, reasons and their sources, cautions) is wrapped at
+/// spaces to `width_columns`, continuation lines indented under their bullet.
 pub fn render_text(
     a: &Assessment,
     setup: &Setup,
     profile_name: &str,
     now: chrono::NaiveDateTime,
+    width_columns: usize,
 ) -> String {
+    let wrap = |lead: &str, text: &str, indent: usize| {
+        output::wrap_hanging(lead, text, indent, width_columns)
+    };
     let mut s = String::new();
     let _ = writeln!(s, "{}  ({} cells)", profile_name, a.cells);
     let _ = writeln!(
@@ -476,23 +488,31 @@ pub fn render_text(
     if !a.flags.is_empty() {
         let _ = writeln!(s, "Flags");
         for f in &a.flags {
-            let _ = writeln!(s, "  {}: {}", f.code.as_str(), f.detail);
+            s += &wrap(&format!("  {}: ", f.code.as_str()), &f.detail, 4);
         }
     }
-    let _ = writeln!(s, "ACTION  {}: {}", a.action.as_str(), a.action.meaning());
+    s += &wrap(
+        &format!("ACTION  {}: ", a.action.as_str()),
+        a.action.meaning(),
+        8,
+    );
     for r in &a.reasons {
-        let _ = writeln!(s, "  - {} ({}): {}", r.rule, r.action.as_str(), r.detail);
-        let _ = writeln!(s, "    source: {}", r.source);
+        let head = format!("{} ({}): {}", r.rule, r.action.as_str(), r.detail);
+        s += &wrap("  - ", &head, 4);
+        s += &wrap("    source: ", &r.source, 6);
     }
     let _ = writeln!(s, "Cautions");
     for c in &a.cautions {
         let t = caution_text(*c);
-        let _ = writeln!(s, "  ! {}: {}", t.title, t.text);
+        s += &wrap("  ! ", &format!("{}: {}", t.title, t.text), 4);
     }
-    let _ = writeln!(
-        s,
-        "Meter {} at {} V resolution; interval k = 2 (GUM).",
-        setup.meter, setup.resolution.0
+    s += &wrap(
+        "",
+        &format!(
+            "Meter {} at {} V resolution; interval k = 2 (GUM).",
+            setup.meter, setup.resolution.0
+        ),
+        2,
     );
     if a.action != Action::Serviceable {
         let _ = writeln!(s, "See SAFETY.md; the maker's instructions govern.");

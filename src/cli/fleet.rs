@@ -179,7 +179,9 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         .transpose()
         .map_err(|e| CliError::usage(format!("--min-temp: {e}")))?;
     if let Some(p) = &args.profile {
-        store.get(p).map_err(CliError::usage)?;
+        store
+            .get(p)
+            .map_err(|e| CliError::usage(format!("--profile: {e}")))?;
     }
     let settings = FleetSettings {
         setup: args.instrument.setup()?,

@@ -85,3 +85,145 @@ fn write_atomic_with(
     }
     Ok(())
 }
+
+/// Width text reports are wrapped to when standard output is not a terminal
+/// (a file, a pipe, a test): the classic terminal width.
+pub const TEXT_COLUMNS: usize = 80;
+
+/// Narrowest terminal width wrapped to; a narrower report reads worse than
+/// lines the terminal folds itself.
+pub const MIN_TEXT_COLUMNS: usize = 20;
+
+/// Columns to wrap text on standard output to: the terminal's width when
+/// stdout is a terminal (at least [`MIN_TEXT_COLUMNS`]), else [`TEXT_COLUMNS`].
+pub fn stdout_columns() -> usize {
+    use std::io::IsTerminal;
+    let out = std::io::stdout();
+    if !out.is_terminal() {
+        return TEXT_COLUMNS;
+    }
+    terminal_size::terminal_size_of(&out)
+        .map(|(w, _)| usize::from(w.0).max(MIN_TEXT_COLUMNS))
+        .unwrap_or(TEXT_COLUMNS)
+}
+
+/// Whether `word` after a number is its unit (`%`, `°C`, `h`, `min`, `mV`),
+/// to be kept on the number's line: a short word, or one starting with a sign.
+fn is_unit_after_number(word: &str) -> bool {
+    let bare = word.trim_end_matches([')', ',', ';', ':', '.']);
+    bare.starts_with(['%', '°']) || (1..=3).contains(&bare.chars().count())
+}
+
+/// `lead` then `text` wrapped at spaces to lines of at most `width_columns`
+/// characters, continuation lines indented by `indent` spaces (under the text
+/// after a bullet such as `"  - "`), each line ending in `\n`. Runs of white
+/// space become one space. A number keeps a short word after it (its unit:
+/// `50 %`, `3–5 min`) on its line. A word longer than the room is kept whole on
+/// its own line rather than split (a URL or file name must stay copyable).
+/// Width is counted in characters: the report's text has no double-width ones.
+pub fn wrap_hanging(lead: &str, text: &str, indent: usize, width_columns: usize) -> String {
+    let mut pieces: Vec<String> = Vec::new();
+    for word in text.split_whitespace() {
+        match pieces.last_mut() {
+            Some(last)
+                if last.ends_with(|c: char| c.is_ascii_digit()) && is_unit_after_number(word) =>
+            {
+                last.push(' ');
+                last.push_str(word);
+            }
+            _ => pieces.push(word.to_string()),
+        }
+    }
+    let mut out = String::new();
+    let mut line = lead.to_string();
+    let mut used = lead.chars().count();
+    let mut has_word = false;
+    for word in &pieces {
+        let len = word.chars().count();
+        if has_word && used + 1 + len > width_columns {
+            out.push_str(line.trim_end());
+            out.push('\n');
+            line = " ".repeat(indent);
+            used = indent;
+            has_word = false;
+        }
+        if has_word {
+            line.push(' ');
+            used += 1;
+        }
+        line.push_str(word);
+        used += len;
+        has_word = true;
+    }
+    out.push_str(line.trim_end());
+    out.push('\n');
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn widths(s: &str) -> Vec<usize> {
+        s.lines().map(|l| l.chars().count()).collect()
+    }
+
+    #[test]
+    fn short_text_stays_on_one_line() {
+        assert_eq!(wrap_hanging("  - ", "a b  c", 4, 80), "  - a b c\n");
+        assert_eq!(wrap_hanging("Flags", "", 2, 80), "Flags\n");
+    }
+
+    #[test]
+    fn long_text_breaks_at_spaces_under_the_bullet() {
+        let text = "one two three four five six seven eight nine ten";
+        let w = wrap_hanging("  ! ", text, 4, 20);
+        assert_eq!(
+            w,
+            "  ! one two three\n    four five six\n    seven eight nine\n    ten\n"
+        );
+        assert!(widths(&w).iter().all(|&n| n <= 20), "{w}");
+        let words: Vec<&str> = w.split_whitespace().skip(1).collect();
+        assert_eq!(words, text.split_whitespace().collect::<Vec<_>>());
+    }
+
+    #[test]
+    fn a_line_of_exactly_the_width_is_kept() {
+        // "ab cd" is 5 characters: fits 5, breaks at 4.
+        assert_eq!(wrap_hanging("", "ab cd", 0, 5), "ab cd\n");
+        assert_eq!(wrap_hanging("", "ab cd", 0, 4), "ab\ncd\n");
+    }
+
+    #[test]
+    fn characters_not_bytes_are_counted() {
+        // "–" and "°" are one column, three and two bytes in UTF-8.
+        // "3–5 °C 3–5 °C" is 13 characters and 19 bytes.
+        assert_eq!(wrap_hanging("", "3–5 °C 3–5 °C", 0, 13), "3–5 °C 3–5 °C\n");
+        assert_eq!(wrap_hanging("", "3–5 °C 3–5 °C", 0, 12), "3–5 °C\n3–5 °C\n");
+    }
+
+    #[test]
+    fn a_number_keeps_its_unit() {
+        // "below 50" fits 14 columns, but "%" stays with its number.
+        assert_eq!(
+            wrap_hanging("", "48 % is below 50 %", 0, 14),
+            "48 % is below\n50 %\n"
+        );
+        assert_eq!(
+            wrap_hanging("", "after 3–5 min, then", 0, 9),
+            "after\n3–5 min,\nthen\n"
+        );
+        // A longer word after a number is no unit: the line may break there.
+        assert_eq!(
+            wrap_hanging("", "Article 320 risk", 0, 11),
+            "Article 320\nrisk\n"
+        );
+    }
+
+    #[test]
+    fn an_overlong_word_is_kept_whole() {
+        let long = "x".repeat(30);
+        let w = wrap_hanging("  - ", &format!("see {long} now"), 4, 20);
+        assert_eq!(w, format!("  - see\n    {long}\n    now\n"));
+    }
+}

@@ -110,14 +110,15 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
     let rules = load_rules(&args.rules)?;
     let ended_at = args.ended_at.as_deref().map(parse_time).transpose()?;
     let mut readings = Vec::new();
+    let now = Some(chrono::Local::now().fixed_offset());
     if let Some(path) = &args.file {
         let name = path.display().to_string();
         let r = if path.as_os_str() == "-" {
-            settle::read_rest_csv(std::io::stdin().lock(), "<stdin>", ended_at)
+            settle::read_rest_csv(std::io::stdin().lock(), "<stdin>", ended_at, now)
         } else {
             let f =
                 std::fs::File::open(path).map_err(|e| CliError::fail(format!("{name}: {e}")))?;
-            settle::read_rest_csv(std::io::BufReader::new(f), &name, ended_at)
+            settle::read_rest_csv(std::io::BufReader::new(f), &name, ended_at, now)
         };
         readings = r.map_err(CliError::usage)?;
     }

@@ -289,6 +289,11 @@ pub fn check_float(
             serde_json::to_string_pretty(&v).map_err(CliError::fail)? + "\n"
         }
         OneFormat::Text => {
+            // As `check` without --float: the free text wraps under its bullet.
+            let width = output::stdout_columns();
+            let wrap = |lead: &str, text: &str, indent: usize| {
+                output::wrap_hanging(lead, text, indent, width)
+            };
             let mut s = String::new();
             let _ = writeln!(
                 s,
@@ -317,36 +322,36 @@ pub fn check_float(
                             at.format("%Y-%m-%d %H:%M")
                         );
                     }
-                    let _ = writeln!(s, "{}", one_unit_note(a));
+                    s += &wrap("", &one_unit_note(a), 2);
                 }
                 None => {
-                    let _ = writeln!(
-                        s,
-                        "State of charge cannot be read from a float voltage: rest the unit to measure it."
+                    s += &wrap(
+                        "",
+                        "State of charge cannot be read from a float voltage: rest the unit to measure it.",
+                        2,
                     );
                 }
             }
             for f in &c.flags {
-                let _ = writeln!(s, "  {}: {}", f.code.as_str(), f.detail);
+                s += &wrap(&format!("  {}: ", f.code.as_str()), &f.detail, 4);
             }
             for n in &c.notes {
-                let _ = writeln!(s, "  note: {n}");
+                s += &wrap("  note: ", n, 4);
             }
-            let _ = writeln!(s, "ACTION  {}: {}", c.action.as_str(), c.action.meaning());
+            s += &wrap(
+                &format!("ACTION  {}: ", c.action.as_str()),
+                c.action.meaning(),
+                8,
+            );
             for r in &c.reasons {
-                let _ = writeln!(
-                    s,
-                    "  - {} ({}): {}\n    source: {}",
-                    r.rule,
-                    r.action.as_str(),
-                    r.detail,
-                    r.source
-                );
+                let head = format!("{} ({}): {}", r.rule, r.action.as_str(), r.detail);
+                s += &wrap("  - ", &head, 4);
+                s += &wrap("    source: ", &r.source, 6);
             }
             let _ = writeln!(s, "Cautions");
             for k in &c.cautions {
                 let t = crate::safety::caution_text(*k);
-                let _ = writeln!(s, "  ! {}: {}", t.title, t.text);
+                s += &wrap("  ! ", &format!("{}: {}", t.title, t.text), 4);
             }
             s
         }

@@ -25,6 +25,12 @@
 //! absolute time, so a clock change during the rest does not shift readings.
 //! One file may not mix the two forms. `event_end` is ignored when the file
 //! has a `minutes` or `hours` column.
+//!
+//! **Future readings.** Given the time now, a timestamp more than
+//! [`FUTURE_ALLOWANCE_HOURS`] after it is refused: a reading cannot have been
+//! taken yet, so the year or the meter's clock is wrong, and the fit would
+//! still run on it. The allowance covers a file written in a zone ahead of
+//! this computer's (as the fleet reader allows a day).
 
 use super::{RestPoint, SettleError};
 use crate::electrolyte::{TEMPERATURE_MAX_C, TEMPERATURE_MIN_C};
@@ -36,6 +42,9 @@ use std::io::Read;
 pub const MAX_VOLTS: f64 = 1000.0;
 /// Elapsed times beyond this (10 years) are typing errors, not a rest.
 pub const MAX_ELAPSED_HOURS: f64 = 10.0 * 365.25 * 24.0;
+/// How far after now a timestamp may lie before it is refused as in the
+/// future: a day, so that local times from a zone ahead of this computer's pass.
+pub const FUTURE_ALLOWANCE_HOURS: i64 = 24;
 
 /// What a temperature column should hold, for a value outside the range the
 /// electrolyte model accepts; a °C value that reads as a plausible °F one says
@@ -134,11 +143,15 @@ fn sniff_delimiter(text: &str) -> u8 {
 ///
 /// `source_name` names the input in messages (`file:line: column …`);
 /// `event_end` is when the charge or discharge ended, needed only for
-/// `taken_at` timestamps.
+/// `taken_at` timestamps. With `now`, a timestamp more than
+/// [`FUTURE_ALLOWANCE_HOURS`] after it is refused; local timestamps are
+/// compared with `now`'s wall-clock time, RFC 3339 ones in absolute time.
+/// `None` skips that check (for stored series read later).
 pub fn read_rest_csv<R: Read>(
     mut reader: R,
     source_name: &str,
     event_end: Option<NaiveDateTime>,
+    now: Option<DateTime<FixedOffset>>,
 ) -> Result<Vec<RestReading>, SettleError> {
     let src = source_name.to_string();
     let mut bytes = Vec::new();
@@ -286,6 +299,22 @@ pub fn read_rest_csv<R: Read>(
                 let expected_form =
                     "a timestamp, RFC 3339 (2024-03-05T14:30:00+01:00) or YYYY-MM-DD HH:MM";
                 let stamp = parse_stamp(field(c)).ok_or_else(|| field_error(c, expected_form))?;
+                if let Some(now) = now {
+                    let latest = now + chrono::Duration::hours(FUTURE_ALLOWANCE_HOURS);
+                    let future = match stamp {
+                        Stamp::Local(t) => t > latest.naive_local(),
+                        Stamp::Offset(t) => t > latest,
+                    };
+                    if future {
+                        return Err(field_error(
+                            c,
+                            &format!(
+                                "a past time: expected at most a day after now ({}), as a reading cannot be taken in the future; check the year and the meter's clock",
+                                now.format("%Y-%m-%d %H:%M %:z")
+                            ),
+                        ));
+                    }
+                }
                 let Some(end) = event_end else {
                     return Err(SettleError::NeedEventEnd { source_name: src });
                 };

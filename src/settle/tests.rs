@@ -466,7 +466,7 @@ fn settling_verdict_agrees_with_the_finite_difference_on_dense_data() {
 
 fn read(text: &str, end: Option<&str>) -> Result<Vec<RestReading>, SettleError> {
     let end = end.map(|e| chrono::NaiveDateTime::parse_from_str(e, "%Y-%m-%d %H:%M").unwrap());
-    read_rest_csv(text.as_bytes(), "rest.csv", end)
+    read_rest_csv(text.as_bytes(), "rest.csv", end, None)
 }
 
 #[test]
@@ -524,6 +524,55 @@ fn csv_timestamps_count_from_the_event_end() {
 }
 
 #[test]
+fn csv_timestamps_more_than_a_day_ahead_of_now_are_refused() {
+    let now = chrono::DateTime::parse_from_rfc3339("2026-12-01T12:00:00+00:00").unwrap();
+    let at = |text: &str| {
+        let end = chrono::NaiveDateTime::parse_from_str("2026-12-01 10:00", "%Y-%m-%d %H:%M");
+        read_rest_csv(text.as_bytes(), "rest.csv", Some(end.unwrap()), Some(now))
+    };
+    // 23 h after now: within the day allowed for a zone ahead of this computer's.
+    let ok = "taken_at,volts
+2026-12-01 11:00,12.93
+2026-12-02 11:00,12.88
+";
+    assert_eq!(at(ok).unwrap().len(), 2);
+    // 25 h after now, at line 3: refused, naming the line and what was expected.
+    let e = at("taken_at,volts
+2026-12-01 11:00,12.93
+2026-12-02 13:00,12.88
+")
+    .unwrap_err();
+    assert!(matches!(e, SettleError::Field { line: 3, .. }), "{e:?}");
+    let msg = e.to_string();
+    assert!(
+        msg.starts_with("rest.csv:3: column 'taken_at': '2026-12-02 13:00' is not a past time")
+            && msg.contains("at most a day after now (2026-12-01 12:00 +00:00)"),
+        "{msg}"
+    );
+    // RFC 3339 stamps compare in absolute time: 13:00+02:00 on the 2nd is
+    // 11:00 UTC, 23 h after now; 13:00-02:00 is 15:00 UTC, 27 h after.
+    let rfc = |t: &str| {
+        format!(
+            "taken_at,volts
+2026-12-01T11:00:00+00:00,12.93
+{t},12.88
+"
+        )
+    };
+    assert!(at(&rfc("2026-12-02T13:00:00+02:00")).is_ok());
+    assert!(matches!(
+        at(&rfc("2026-12-02T13:00:00-02:00")),
+        Err(SettleError::Field { line: 3, .. })
+    ));
+    // Without `now` nothing is checked (a stored series read later).
+    let late = "taken_at,volts
+2099-12-01 11:00,12.93
+2099-12-01 12:00,12.88
+";
+    assert!(read(late, Some("2099-12-01 10:00")).is_ok());
+}
+
+#[test]
 fn csv_bad_lines_name_file_line_and_column() {
     let e = read("minutes,volts\n10,12.93\n20,twelve\n", None).unwrap_err();
     assert!(matches!(e, SettleError::Field { line: 3, .. }), "{e:?}");
@@ -558,13 +607,14 @@ fn csv_bad_lines_name_file_line_and_column() {
         read("minutes,volts\n", None),
         Err(SettleError::Header { .. })
     ));
-    let e = read_rest_csv(&[0xff, 0xfe, 0x00][..], "bin.csv", None).unwrap_err();
+    let e = read_rest_csv(&[0xff, 0xfe, 0x00][..], "bin.csv", None, None).unwrap_err();
     assert!(matches!(e, SettleError::Line { line: 1, .. }), "{e:?}");
     assert!(e.to_string().contains("UTF-16"), "{e}");
     // 0xB0 is the degree sign in Latin-1 (ISO/IEC 8859-1), not UTF-8.
     let e = read_rest_csv(
         &b"minutes,volts,temp_c\n10,12.9,18\n20,12.8,18\xb0\n"[..],
         "l1.csv",
+        None,
         None,
     )
     .unwrap_err();
