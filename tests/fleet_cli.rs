@@ -63,6 +63,15 @@ fn injected_faults_are_flagged_with_the_expected_action() {
             // Deeply discharged: the estimate is well below the profile's urgent threshold.
             assert!(u["soc_percent"].as_f64().unwrap() < 20.0);
         }
+        if id == "TD-V07" {
+            // One cell short: the reading gives no charge of the whole block,
+            // so none is shown (a 0 % would read as a flat battery); the
+            // flag's detail gives the five good cells' charge.
+            assert!(u["soc_percent"].is_null(), "{id}");
+            assert!(u["soc_interval_percent"].is_null(), "{id}");
+            let detail = u["reasons"][0]["detail"].as_str().unwrap();
+            assert!(detail.contains("fits 5 cells at"), "{detail}");
+        }
         for r in u["reasons"].as_array().unwrap() {
             assert!(
                 !r["source"].as_str().unwrap().is_empty(),
@@ -121,7 +130,7 @@ fn rows_read_equal_accepted_plus_rejected_with_line_numbers() {
 #[test]
 fn every_format_renders_and_the_output_file_is_written_whole() {
     let dir = tmp();
-    for fmt in ["table", "csv", "json", "markdown"] {
+    for fmt in ["table", "csv", "json", "markdown", "html"] {
         let path = dir.path().join(format!("report.{fmt}"));
         let out = restvolt()
             .args(["fleet", "--format", fmt, "-o"])
@@ -132,6 +141,25 @@ fn every_format_renders_and_the_output_file_is_written_whole() {
         assert_eq!(out.status.code(), Some(3), "{fmt}");
         let text = std::fs::read_to_string(&path).unwrap();
         assert!(text.contains("TD-V07"), "{fmt}");
+        // TD-V07's shorted cell leaves its state of charge unknown: each
+        // format shows it empty, not as 0 %.
+        let line = text
+            .lines()
+            .find(|l| l.contains("TD-V07"))
+            .unwrap()
+            .to_string();
+        match fmt {
+            "table" => assert!(line.contains(" replace       -  "), "{line}"),
+            "csv" => assert!(line.contains(",replace,,,,"), "{line}"),
+            "markdown" => assert!(line.contains("| **replace** | - |"), "{line}"),
+            "html" => assert!(
+                text.contains("<p class=\"where\">Tarrow depot / #7 · profile flooded-automotive · state of charge unknown</p>"),
+                "{fmt}"
+            ),
+            // JSON: null, checked in injected_faults_are_flagged_with_the_expected_action.
+            _ => {}
+        }
+        assert!(!line.contains("0.0 [0.0"), "{fmt}: {line}");
     }
     // Refuses to write over its own input.
     let input = dir.path().join("in.csv");
@@ -203,6 +231,16 @@ fn generated_fleet_round_trips_through_the_analysis() {
             _ => continue,
         };
         assert_eq!(action(id).as_deref(), Some(want), "{id}: {fault}");
+        if want == "replace" {
+            // A shorted cell's block has no whole-unit charge to show.
+            let u = v["units"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|u| u["unit_id"] == id.as_str())
+                .unwrap();
+            assert!(u["soc_percent"].is_null(), "{id}: {u}");
+        }
         checked += 1;
     }
     assert!(checked >= 5, "only {checked} units checked");

@@ -358,7 +358,9 @@ pub struct UnitReport {
     pub profile: String,
     /// Recommended action.
     pub action: Action,
-    /// State of charge at the latest reading (None for float-only units).
+    /// State of charge at the latest reading (None for a unit on float, and
+    /// for one with a suspect shorted cell, whose reading gives no charge of
+    /// the whole unit).
     pub soc_percent: Option<f64>,
     /// Its 95 % interval.
     pub soc_interval_percent: Option<[f64; 2]>,
@@ -766,11 +768,17 @@ fn judge_unit(
     } else {
         match assess(profile, &to_reading(row), &setup, rules) {
             Ok(a) => {
-                soc = Some(round(a.soc_percent, 1));
-                interval = Some([
-                    round(a.soc_interval_percent[0], 1),
-                    round(a.soc_interval_percent[1], 1),
-                ]);
+                // With a cell shorted the reading lies below the curve for the
+                // whole unit and says nothing of its charge: a 0 % would read
+                // as a flat battery. The flag's detail gives the charge of the
+                // cells that are left.
+                if !a.has(FlagCode::SuspectShortedCell) {
+                    soc = Some(round(a.soc_percent, 1));
+                    interval = Some([
+                        round(a.soc_interval_percent[0], 1),
+                        round(a.soc_interval_percent[1], 1),
+                    ]);
+                }
                 let trusted = matches!(a.rest.status, RestStatus::Settled | RestStatus::Usable)
                     && !a.has(FlagCode::CheckConnection)
                     && !a.has(FlagCode::WrongCellCount)

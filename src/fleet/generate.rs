@@ -5,12 +5,18 @@
 //! # The fleet
 //! Units are split 40 % / 30 % / 30 %:
 //! - 2 V `flooded-stationary` cells in strings of 24, at `kestrel-exchange`
-//!   (20–24 °C) and `pinecrest-substation` (8–14 °C). About a quarter of their
-//!   readings are taken on float (`after = float`, with float current and ambient).
+//!   (20–24 °C) and `pinecrest-substation` (8–14 °C). About a quarter of the
+//!   healthy cells' readings are taken on float (`after = float`, with float
+//!   current and ambient); see *Float readings*.
 //! - 12 V `agm` monoblocs in strings of 4, at `harbour-relay` (22–30 °C) and in
 //!   outdoor cabinets at the cold site `frostmoor-depot` (−20 to 0 °C).
 //! - A vehicle pool of 12 V `flooded-automotive` blocks at `frostmoor-depot`,
 //!   with no string or position, and a hydrometer value per cell.
+//!
+//! The units of a string stand in one room: at each visit the string has one
+//! temperature, drawn from the site's range (0.5 °C in from each end), and each
+//! unit reads within ±0.5 °C of it. Vehicle blocks each read a temperature
+//! from the site's range.
 //!
 //! Rest voltages come from the profile: cells × `ocv_per_cell_at(soc, t)`,
 //! plus meter noise of a few mV, rounded to 1 mV (2 V cells) or 10 mV (blocks).
@@ -36,12 +42,29 @@
 //! | `ohmic-rise` | units with an ohmic baseline | all | ohmic value rising from ≈ baseline to 1.5–1.9 × baseline |
 //!
 //! Healthy units read 92–100 %, with ohmic values within a few percent of
-//! their baseline. Readings are spread evenly over `days` from 2024-01-08,
-//! between 08:00 and 16:59 local time, written unit by unit.
+//! their baseline. Faulty units are never read on float.
+//!
+//! # Float readings
+//! A healthy stationary cell read on float passes the float checks
+//! ([`crate::float`]): its voltage is the middle of the profile's
+//! temperature-compensated float window at the cell's temperature
+//! ([`crate::float::compensated_window`]), plus about 8 mV of cell-to-cell
+//! scatter, kept 10 mV inside the window; the cells of a string are within
+//! 1 °C of each other (FIST 3-6 allows 3 °C), and the ambient is 0.2–1 °C
+//! below the string's temperature. The string carries one float current per
+//! visit, the same in every unit's record: the profile's expected current for
+//! an invented 200 Ah, plus 10–50 % at the first visit, settling towards it
+//! and never rising.
+//!
+//! # Times
+//! Readings are spread evenly over `days` from 2024-01-08, between 08:00 and
+//! 16:59 local time, written unit by unit; reading `k` of every unit falls on
+//! the same day (the string's visit `k`).
 //!
 //! The same seed gives the same file with the same `rand` version (StdRng is
 //! not guaranteed stable across `rand` releases).
 
+use crate::profile::schema::FloatSection;
 use crate::profile::store::ProfileStore;
 use crate::profile::Profile;
 use crate::units::{Celsius, SocPercent};
@@ -153,6 +176,11 @@ const STATIONARY_STRING_CELLS: u32 = 24;
 const AGM_STRING_BLOCKS: u32 = 4;
 /// Hydrometer temperature correction: 0.001 SG per 1.67 °C (REFERENCES §2).
 const SG_PER_KELVIN: f64 = 0.001 / 1.67;
+/// Invented rated capacity of the demo strings, Ah, for their float current.
+const STRING_CAPACITY_AH: f64 = 200.0;
+/// Half the spread of the unit temperatures in one string at one visit, K:
+/// well inside FIST 3-6's 3 °C limit (the `temp-spread` rule).
+const UNIT_TEMP_HALF_SPREAD_K: f64 = 0.5;
 
 #[derive(Clone, Copy, PartialEq, Eq)]
 enum Kind {
@@ -293,6 +321,8 @@ pub fn generate<W: io::Write>(opts: &GenerateOptions, out: W) -> io::Result<Gene
         faulty_units: BTreeMap::new(),
     };
     let readings = opts.readings_per_unit.unwrap_or(1 + opts.days / 7).max(1);
+    // The visits of the string being written (a string's units are consecutive).
+    let mut visits: Option<StringVisits> = None;
 
     for j in 0..opts.units {
         let unit = layout(j, opts.units);
@@ -301,6 +331,13 @@ pub fn generate<W: io::Write>(opts: &GenerateOptions, out: W) -> io::Result<Gene
             Kind::Agm => agm,
             Kind::Vehicle => automotive,
         };
+        if let Some(string) = &unit.string {
+            let key = (unit.site.name, string.clone());
+            if visits.as_ref().map(|v| &v.key) != Some(&key) {
+                visits = Some(StringVisits::draw(key, unit.site, p, readings, &mut rng));
+            }
+        }
+        let string_visits = visits.as_ref().filter(|_| unit.string.is_some());
         let fault = if rng.gen_bool(FAULTY_SHARE) {
             let kinds = applicable(&unit);
             kinds[rng.gen_range(0..kinds.len())]
@@ -315,7 +352,7 @@ pub fn generate<W: io::Write>(opts: &GenerateOptions, out: W) -> io::Result<Gene
         let spec = UnitSpec::draw(&unit, p, fault, &mut rng);
         for k in 0..readings {
             let at = reading_time(start, opts.days, readings, k, &mut rng);
-            let record = spec.reading(&unit, p, fault, k, readings, at, &mut rng);
+            let record = spec.reading(&unit, p, fault, k, readings, at, string_visits, &mut rng);
             wtr.write_record(&record)?;
             summary.readings += 1;
         }
@@ -334,6 +371,62 @@ fn reading_time(
     let day = u64::from(days) * u64::from(k) / u64::from(readings);
     let minutes = day as i64 * 24 * 60 + rng.gen_range(8 * 60..17 * 60);
     start + chrono::Duration::minutes(minutes)
+}
+
+/// What a string's units share at each visit (index = reading number).
+struct StringVisits {
+    /// (site name, string name).
+    key: (&'static str, String),
+    /// The string's temperature, °C.
+    temp_c: Vec<f64>,
+    /// How far the room is below the string, K.
+    ambient_below_k: Vec<f64>,
+    /// The string's float current, A, if its profile has float data.
+    float_current_a: Vec<Option<f64>>,
+}
+
+impl StringVisits {
+    fn draw(
+        key: (&'static str, String),
+        site: &Site,
+        p: &Profile,
+        readings: u32,
+        rng: &mut StdRng,
+    ) -> StringVisits {
+        let (lo, hi) = site.temp_c;
+        let temp_c = (0..readings)
+            .map(|_| rng.gen_range(lo + UNIT_TEMP_HALF_SPREAD_K..=hi - UNIT_TEMP_HALF_SPREAD_K))
+            .collect();
+        let ambient_below_k = (0..readings).map(|_| rng.gen_range(0.2..1.0)).collect();
+        // A charged string's float current settles towards the expected value;
+        // it never rises at a steady voltage (a rise is the runaway sign).
+        let expected_a = p
+            .spec
+            .float
+            .as_ref()
+            .map(|f| f.expected_current_ma_per_ah.value * STRING_CAPACITY_AH / 1000.0);
+        let excess = rng.gen_range(0.1..0.5);
+        let decay: f64 = rng.gen_range(0.6..0.9);
+        let float_current_a = (0..readings)
+            .map(|k| expected_a.map(|e| e * (1.0 + excess * decay.powf(f64::from(k)))))
+            .collect();
+        StringVisits {
+            key,
+            temp_c,
+            ambient_below_k,
+            float_current_a,
+        }
+    }
+}
+
+/// A float voltage per cell that passes the float checks at `temp`: the
+/// middle of the compensated window plus cell-to-cell scatter, kept 10 mV
+/// inside the window so that rounding to 1 mV cannot take it out.
+fn float_volts_per_cell(f: &FloatSection, temp: Celsius, rng: &mut StdRng) -> f64 {
+    let (lo, hi) = crate::float::compensated_window(f, temp);
+    let margin = 0.010_f64.min((hi.0 - lo.0) / 4.0);
+    let mid = (lo.0 + hi.0) / 2.0;
+    (mid + 0.008 * normal(rng)).clamp(lo.0 + margin, hi.0 - margin)
 }
 
 /// Per-unit constants drawn once.
@@ -397,14 +490,18 @@ impl UnitSpec {
         k: u32,
         readings: u32,
         at: NaiveDateTime,
+        visits: Option<&StringVisits>,
         rng: &mut StdRng,
     ) -> Vec<String> {
         let last = k + 1 == readings;
-        let (t_lo, t_hi) = match fault {
-            FaultKind::FreezeRisk => (-20.0, -12.0),
-            _ => unit.site.temp_c,
+        let string_temp = visits.and_then(|v| v.temp_c.get(k as usize).copied());
+        let temp = match (fault, string_temp) {
+            (FaultKind::FreezeRisk, _) => rng.gen_range(-20.0..=-12.0),
+            (_, Some(t)) => t + rng.gen_range(-UNIT_TEMP_HALF_SPREAD_K..=UNIT_TEMP_HALF_SPREAD_K),
+            (_, None) => rng.gen_range(unit.site.temp_c.0..=unit.site.temp_c.1),
         };
-        let temp = Celsius(rng.gen_range(t_lo..=t_hi));
+        // As written (0.1 °C), so the float window below is the one the checks compute.
+        let temp = Celsius((temp * 10.0).round() / 10.0);
         let cells = f64::from(self.cells);
         let mut soc = (self.soc_percent + normal(rng)).clamp(0.0, 100.0);
         let mut after = match unit.kind {
@@ -447,31 +544,22 @@ impl UnitSpec {
         }
         let soc_p = SocPercent(soc);
 
-        let float = unit.kind == Kind::Stationary
-            && fault == FaultKind::Healthy
-            && rng.gen_bool(0.25)
-            && p.spec.float.is_some();
+        let float_section = p
+            .spec
+            .float
+            .as_ref()
+            .filter(|_| unit.kind == Kind::Stationary && fault == FaultKind::Healthy);
+        let float_section = float_section.filter(|_| rng.gen_bool(0.25));
+        let float = float_section.is_some();
         let mut float_current = None;
         let mut ambient = None;
-        let volts = if float {
+        let volts = if let Some(f) = float_section {
             after = "float";
             rest_h = None;
-            let (lo, hi, ma_per_ah) = p
-                .spec
-                .float
-                .as_ref()
-                .map(|f| {
-                    (
-                        f.window_low_volts_per_cell.value,
-                        f.window_high_volts_per_cell.value,
-                        f.expected_current_ma_per_ah.value,
-                    )
-                })
-                .unwrap_or((2.20, 2.25, 1.0));
-            // Invented capacity of 200 Ah for the demo strings.
-            float_current = Some(ma_per_ah * 200.0 / 1000.0 * rng.gen_range(0.7..1.5));
-            ambient = Some(temp.0 + rng.gen_range(-1.0..1.0));
-            cells * rng.gen_range(lo..hi)
+            let k = k as usize;
+            float_current = visits.and_then(|v| v.float_current_a.get(k).copied().flatten());
+            ambient = visits.and_then(|v| Some(v.temp_c.get(k)? - v.ambient_below_k.get(k)?));
+            cells * float_volts_per_cell(f, temp, rng)
         } else {
             let per_cell = p.ocv_per_cell_at(soc_p, temp).0 + extra_mv_per_cell / 1000.0;
             let noise = 0.003 * cells.sqrt() * normal(rng);
@@ -534,5 +622,166 @@ impl UnitSpec {
             opt(ambient.map(|a: f64| format!("{a:.1}"))),
             note,
         ]
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fleet::analysis::{finish, FleetSettings, FleetState};
+    use crate::fleet::ingest::IngestOptions;
+    use crate::float::FloatFlagCode;
+
+    /// Every code the float checks can raise, and the fleet's own for a float
+    /// reading it could not check.
+    fn float_codes() -> Vec<&'static str> {
+        let mut v: Vec<&str> = [
+            FloatFlagCode::FloatLow,
+            FloatFlagCode::FloatHigh,
+            FloatFlagCode::FloatDeviation,
+            FloatFlagCode::TempSpread,
+            FloatFlagCode::ThermalRunawayRisk,
+        ]
+        .iter()
+        .map(|c| c.as_str())
+        .collect();
+        v.push("float-unchecked");
+        v
+    }
+
+    #[test]
+    fn healthy_units_on_float_pass_the_float_checks() {
+        let store = ProfileStore::builtin().unwrap();
+        let codes = float_codes();
+        for seed in [3, 5, 7] {
+            let mut text = Vec::new();
+            let summary = generate(
+                &GenerateOptions {
+                    units: 300,
+                    days: 60,
+                    seed,
+                    readings_per_unit: None,
+                },
+                &mut text,
+            )
+            .unwrap();
+            let settings = FleetSettings::default();
+            let mut state = FleetState::default();
+            state
+                .ingest(
+                    "gen.csv",
+                    &text[..],
+                    &IngestOptions::default(),
+                    &store,
+                    &settings,
+                )
+                .unwrap();
+            let report = finish(&state, &store, &settings);
+
+            let mut on_float = 0;
+            for u in &report.units {
+                if summary.faulty_units.contains_key(&u.unit_id) {
+                    continue;
+                }
+                if u.flags.iter().any(|f| f == "on-float") {
+                    on_float += 1;
+                }
+                // A unit's own float flags, and the string-level ones it
+                // takes as reasons (temp-spread, a rising current).
+                let found: Vec<&str> = u
+                    .flags
+                    .iter()
+                    .map(String::as_str)
+                    .chain(u.reasons.iter().map(|r| r.rule.as_str()))
+                    .filter(|c| codes.contains(c))
+                    .collect();
+                assert!(
+                    found.is_empty(),
+                    "seed {seed}: healthy {} has float findings {found:?}: {:?}",
+                    u.unit_id,
+                    u.reasons
+                );
+            }
+            // Only healthy units are read on float, so no string may be flagged,
+            // nor its units disagree on the string's one current.
+            for s in &report.float_strings {
+                assert!(
+                    s.flags.is_empty(),
+                    "seed {seed}: {}: {:?}",
+                    s.string,
+                    s.flags
+                );
+                assert!(
+                    !s.notes
+                        .iter()
+                        .any(|n| n.contains("different string currents")),
+                    "seed {seed}: {}: {:?}",
+                    s.string,
+                    s.notes
+                );
+            }
+            // A quarter of the healthy stationary cells' readings are on float
+            // (the module doc): 120 cells, three in four healthy, so about 22
+            // have a latest reading on float; the check must not pass empty.
+            assert!(on_float >= 10, "seed {seed}: only {on_float} on float");
+            assert!(!report.float_strings.is_empty(), "seed {seed}");
+        }
+    }
+
+    #[test]
+    fn a_strings_float_current_is_shared_and_never_rises() {
+        let mut text = Vec::new();
+        generate(
+            &GenerateOptions {
+                units: 300,
+                days: 120,
+                seed: 9,
+                readings_per_unit: None,
+            },
+            &mut text,
+        )
+        .unwrap();
+        let mut rdr = csv::Reader::from_reader(&text[..]);
+        // (site, string, day) → currents; (site, string) → currents by day.
+        let mut by_visit: BTreeMap<(String, String, String), Vec<f64>> = BTreeMap::new();
+        let mut temps: BTreeMap<(String, String, String), Vec<f64>> = BTreeMap::new();
+        for rec in rdr.records() {
+            let rec = rec.unwrap();
+            if &rec[11] != "float" {
+                continue;
+            }
+            let key = (
+                rec[3].to_string(),
+                rec[4].to_string(),
+                rec[1][..10].to_string(),
+            );
+            by_visit
+                .entry(key.clone())
+                .or_default()
+                .push(rec[14].parse().unwrap());
+            temps.entry(key).or_default().push(rec[9].parse().unwrap());
+        }
+        assert!(by_visit.len() > 20, "{} float visits", by_visit.len());
+        let mut last: BTreeMap<(String, String), f64> = BTreeMap::new();
+        for ((site, string, day), currents) in &by_visit {
+            assert!(
+                currents.iter().all(|i| i == &currents[0]),
+                "{site}/{string} on {day}: {currents:?}"
+            );
+            // Keys sort by day within a string, so `last` is the visit before.
+            if let Some(before) = last.insert((site.clone(), string.clone()), currents[0]) {
+                assert!(
+                    currents[0] <= before,
+                    "{site}/{string} on {day}: {before} → {}",
+                    currents[0]
+                );
+            }
+            let t = &temps[&(site.clone(), string.clone(), day.clone())];
+            let spread = t.iter().copied().fold(f64::MIN, f64::max)
+                - t.iter().copied().fold(f64::MAX, f64::min);
+            // FIST 3-6: 3 °C spread limit (the temp-spread rule, published); the
+            // generator keeps 1 °C plus rounding.
+            assert!(spread <= 1.1, "{site}/{string} on {day}: {t:?}");
+        }
     }
 }

@@ -30,8 +30,8 @@ use super::charts::{
 };
 use super::{
     actions_present, caution_actions, evidence, float_current_text, float_soc_status,
-    float_temp_spread_text, float_unit_reading, float_units_flagged, float_units_needing_action,
-    location, needing_action, report_cautions, FleetFormat, ReportContext, FLOAT_INTRO,
+    float_temp_spread_text, float_unit_reading, float_units_flagged, float_units_note, location,
+    needing_action, report_cautions, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::correct::Action;
 use crate::fleet::analysis::{FleetReport, UnitReport};
@@ -301,23 +301,12 @@ fn actions(h: &mut String, report: &FleetReport) {
         any = true;
         unit_block(h, u);
     }
-    let on_float = float_units_needing_action(report);
     if !any {
-        if on_float.is_empty() {
-            h.push_str("<p>No unit needs action: every unit is serviceable.</p>\n");
-        } else {
-            h.push_str("<p>No unit read at rest needs action.</p>\n");
-        }
+        // Units on float are judged with the others: none needs action either.
+        h.push_str("<p>No unit needs action: every unit is serviceable.</p>\n");
     }
-    if !on_float.is_empty() {
-        let ids: Vec<String> = on_float.iter().map(|id| escape(id)).collect();
-        let _ = writeln!(
-            h,
-            "<p class=\"note\">Units on float are judged under <a href=\"#float\">Strings on float</a>; \
-             {} need action there: {}.</p>",
-            ids.len(),
-            ids.join(", ")
-        );
+    if let Some(note) = float_units_note(report, "<a href=\"#float\">Strings on float</a>") {
+        let _ = writeln!(h, "<p class=\"note\">{note}.</p>");
     }
     h.push_str("</section>\n");
 }
@@ -1061,6 +1050,19 @@ mod tests {
             .collect();
         assert_eq!(kids, ["h2", "p"]);
         assert!(html.contains("No reading in this report was taken on float charge."));
+    }
+
+    #[test]
+    fn the_unit_list_says_why_units_on_float_have_no_soc() {
+        let html = float_page();
+        assert!(
+            html.contains(
+                "<p class=\"note\">4 units on float: their state of charge is not read from a float voltage; \
+                 see <a href=\"#float\">Strings on float</a>.</p>"
+            ),
+            "{html}"
+        );
+        assert!(!html.contains("need action there"));
     }
 
     #[test]

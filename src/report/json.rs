@@ -22,8 +22,9 @@
 //!   - `action`: one of `replace`, `recharge-now`, `remeasure`, `equalize`,
 //!     `capacity-test`, `recharge`, `serviceable` (that order is precedence).
 //!   - `soc_percent`: state of charge at the latest reading, %; null for a
-//!     float-only or unusable reading. `soc_interval_percent`: its 95 %
-//!     interval `[low, high]`, %.
+//!     float-only or unusable reading, and for a `suspect-shorted-cell` unit
+//!     (the flag's detail gives the charge of the remaining cells).
+//!     `soc_interval_percent`: its 95 % interval `[low, high]`, %.
 //!   - `ocv_per_cell_25c_volts`: latest rested voltage per cell referred to
 //!     25 °C, V; null when the reading was not rested or not trusted.
 //!   - `flags`: flag codes, sorted (e.g. `short-rest`, `freeze-risk`,

@@ -10,7 +10,7 @@
 
 use super::{
     actions_present, caution_actions, float_current_text, float_soc_status, float_temp_spread_text,
-    float_unit_reading, float_units_flagged, float_units_needing_action, location, needing_action,
+    float_unit_reading, float_units_flagged, float_units_note, location, needing_action,
     report_cautions, soc_text, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::fleet::analysis::FleetReport;
@@ -109,15 +109,8 @@ impl FleetFormat for Markdown {
         if !any {
             m.push_str("No unit needs action.\n");
         }
-        let on_float = float_units_needing_action(report);
-        if !on_float.is_empty() {
-            let ids: Vec<String> = on_float.iter().map(|id| escape(id)).collect();
-            let _ = writeln!(
-                m,
-                "\nUnits on float are judged under *Strings on float*; {} need action there: {}.",
-                ids.len(),
-                ids.join(", ")
-            );
+        if let Some(note) = float_units_note(report, "*Strings on float*") {
+            let _ = writeln!(m, "\n{note}.");
         }
         m.push_str(
             "\nSOC is the state of charge at the latest reading, with its 95 % interval \
@@ -326,6 +319,11 @@ mod tests {
         // The hot block's caution reaches the caution list, and its action the sentence.
         assert!(md.contains("- **Thermal runaway**"));
         assert!(md.contains("call for (replace, remeasure, capacity-test, serviceable)"));
+        // The unit list says why its four float blocks have no SOC.
+        assert!(md.contains(
+            "\n4 units on float: their state of charge is not read from a float voltage; see *Strings on float*.\n"
+        ));
+        assert!(!out().contains("on float:"));
     }
 
     #[test]

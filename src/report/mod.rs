@@ -247,16 +247,25 @@ pub(crate) fn float_units_flagged(
     v.into_iter()
 }
 
-/// Ids of the units on float whose checks call for action, for the pointer
-/// from the units-needing-action part of a report to the float section.
-pub(crate) fn float_units_needing_action(report: &FleetReport) -> Vec<&str> {
-    report
-        .float_strings
+/// The line after the unit list about the units whose latest reading is on
+/// float: why they show no state of charge, and where their string's checks
+/// are (`section`, as the format names it). None when no unit is on float.
+/// Their actions are in the unit list already, like every other unit's.
+pub(crate) fn float_units_note(report: &FleetReport, section: &str) -> Option<String> {
+    let n = report
+        .units
         .iter()
-        .flat_map(|s| s.per_unit.iter())
-        .filter(|c| c.action != Action::Serviceable)
-        .map(|c| c.unit_id.as_str())
-        .collect()
+        .filter(|u| u.flags.iter().any(|f| f == "on-float"))
+        .count();
+    match n {
+        0 => None,
+        1 => Some(format!(
+            "1 unit on float: its state of charge is not read from a float voltage; see {section}"
+        )),
+        n => Some(format!(
+            "{n} units on float: their state of charge is not read from a float voltage; see {section}"
+        )),
+    }
 }
 
 /// The sentence every format opens its float section with.
@@ -503,16 +512,37 @@ mod tests {
     }
 
     #[test]
+    fn the_float_units_line_counts_in_singular_and_plural() {
+        let (mut report, _) = fixture::float_report();
+        assert_eq!(
+            float_units_note(&report, "X").as_deref(),
+            Some("4 units on float: their state of charge is not read from a float voltage; see X")
+        );
+        for u in &mut report.units[1..] {
+            u.flags.retain(|f| f != "on-float");
+        }
+        assert_eq!(
+            float_units_note(&report, "X").as_deref(),
+            Some("1 unit on float: its state of charge is not read from a float voltage; see X")
+        );
+        assert_eq!(float_units_note(&fixture::report().0, "X"), None);
+    }
+
+    #[test]
     fn a_hot_unit_on_float_brings_the_thermal_runaway_caution() {
         // VRLA makers' manuals (published, REFERENCES §5, via safety.rs): a unit
         // in thermal runaway is a hazard of its own; the float fixture's E4 is
         // 13 K above the room, so its caution must reach the report's list.
         let (report, _) = fixture::float_report();
         assert!(report_cautions(&report).contains(&Caution::ThermalRunaway));
-        assert_eq!(float_units_needing_action(&report), ["E2", "E4"]);
+        let acting: Vec<&str> = needing_action(&report)
+            .map(|u| u.unit_id.as_str())
+            .collect();
+        // E4 is replaced; the string's rising current concerns every unit, so
+        // all four are in the unit list with an action.
+        assert_eq!(acting, ["E4", "E1", "E2", "E3"]);
         let (plain, _) = fixture::report();
         assert!(!report_cautions(&plain).contains(&Caution::ThermalRunaway));
-        assert!(float_units_needing_action(&plain).is_empty());
     }
 
     #[test]

@@ -9,7 +9,7 @@
 
 use super::{
     actions_present, float_current_text, float_soc_status, float_temp_spread_text,
-    float_unit_reading, float_units_flagged, float_units_needing_action, location, needing_action,
+    float_unit_reading, float_units_flagged, float_units_note, location, needing_action,
     report_cautions, soc_text, truncate, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::correct::Action;
@@ -200,16 +200,8 @@ impl FleetFormat for Table {
         if report.units.is_empty() {
             o.line("  (no units)");
         }
-        let on_float = float_units_needing_action(report);
-        if !on_float.is_empty() {
-            o.wrapped(
-                2,
-                &format!(
-                    "Units on float are judged under STRINGS ON FLOAT; {} need action there: {}",
-                    on_float.len(),
-                    on_float.join(", ")
-                ),
-            );
+        if let Some(note) = float_units_note(report, "STRINGS ON FLOAT") {
+            o.wrapped(2, &note);
         }
         o.blank();
 
@@ -261,8 +253,7 @@ impl FleetFormat for Table {
         for n in &report.notices {
             o.wrapped(2, &format!("notice: {n}"));
         }
-        if needing_action(report).next().is_some() || !float_units_needing_action(report).is_empty()
-        {
+        if needing_action(report).next().is_some() {
             o.blank();
             o.heading("CAUTIONS (long form in SAFETY.md)");
             let titles: Vec<&str> = report_cautions(report)
@@ -457,15 +448,26 @@ mod tests {
     #[test]
     fn no_float_section_without_float_readings() {
         let t = table(false);
-        assert!(!t.contains("STRINGS ON FLOAT") && !t.contains("Units on float"));
+        assert!(!t.contains("STRINGS ON FLOAT") && !t.contains("on float:"));
     }
 
     #[test]
-    fn float_units_needing_action_are_pointed_to_and_bring_cautions() {
+    fn float_units_are_ranked_pointed_to_and_bring_cautions() {
         let (report, store) = fixture::float_report();
         let t = Table.render(&report, &fixture::ctx(&store));
-        // No unit read at rest needs action, but E2 and E4 on float do.
-        assert!(t.contains("2 need action there: E2, E4"));
+        // E4 (13 K over the room) is ranked first and E2 (floating low) is
+        // listed with its own finding; the four blocks on float show no SOC,
+        // and the line after the list says why.
+        let ranked = &t[..t.find("STRINGS ON FLOAT (").expect("float section")];
+        assert!(ranked.contains("   1 E4 "), "{ranked}");
+        assert!(ranked.contains("float-low: 2.210 V per cell"), "{ranked}");
+        assert!(
+            ranked.contains(
+                "4 units on float: their state of charge is not read from a float voltage; see STRINGS ON FLOAT"
+            ),
+            "{ranked}"
+        );
+        assert!(!t.contains("need action there"));
         let cautions = &t[t.find("CAUTIONS").expect("cautions shown")..];
         assert!(cautions.contains("Thermal runaway"), "{cautions}");
     }
