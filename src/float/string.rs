@@ -286,7 +286,7 @@ pub fn analyse_string(
         // Units in series carry one current; differing entries are typing or clamp errors.
         if hi - lo > 0.05 * m.max(1e-9) {
             notes.push(format!(
-                "the units give different string currents ({lo} A to {hi} A): the median {m} A is used"
+                "the units give different string currents ({lo:.3} A to {hi:.3} A): the median {m:.3} A is used"
             ));
         }
     }
