@@ -349,3 +349,44 @@ fn a_reader_that_leaves_early_ends_the_run_quietly() {
         );
     }
 }
+
+#[test]
+fn an_output_that_is_a_pipe_or_device_is_written_through_not_replaced() {
+    // `-o /dev/null` or `-o` a named pipe: writing a temporary file and
+    // renaming it over the path would replace the device node itself. A FIFO
+    // in a temporary folder stands in for the device (the test must not risk
+    // the machine's /dev/null).
+    use std::io::Read;
+    use std::os::unix::fs::FileTypeExt;
+    let dir = tmp();
+    let fifo = dir.path().join("report.fifo");
+    let made = std::process::Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap();
+    assert!(made.success());
+    let reader = {
+        let fifo = fifo.clone();
+        std::thread::spawn(move || {
+            let mut text = String::new();
+            std::fs::File::open(&fifo)
+                .unwrap()
+                .read_to_string(&mut text)
+                .unwrap();
+            text
+        })
+    };
+    let out = restvolt()
+        .args(["fleet", "--format", "csv", "-o"])
+        .arg(&fifo)
+        .arg(repo("demo-data/fleet.csv"))
+        .output()
+        .unwrap();
+    // The kind first: had the pipe been replaced, its reader would wait for
+    // ever (the test fails, and the thread ends with the test process).
+    let kind = std::fs::symlink_metadata(&fifo).unwrap().file_type();
+    assert!(kind.is_fifo(), "the pipe was replaced by {kind:?}");
+    assert_eq!(out.status.code(), Some(3), "{out:?}"); // the demo has two bad rows
+    let text = reader.join().unwrap();
+    assert!(text.starts_with("rank,unit_id"), "{text}");
+}

@@ -61,6 +61,19 @@ fn write_atomic_with(
             path.display()
         )));
     }
+    let fail = |e: std::io::Error| CliError::fail(format!("writing {}: {e}", path.display()));
+    // A device or a pipe (`-o /dev/null`, `-o /dev/stdout`, a FIFO) is
+    // written through: renaming a file over it would replace the device
+    // node itself with a regular file, for every program on the machine.
+    if std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+        let result = (|| {
+            let f = std::fs::OpenOptions::new().write(true).open(path)?;
+            let mut w = std::io::BufWriter::with_capacity(64 * 1024, f);
+            write(&mut w)?;
+            w.flush()
+        })();
+        return result.map_err(fail);
+    }
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
@@ -70,7 +83,6 @@ fn write_atomic_with(
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
     let tmp = dir.join(format!(".{name}.restvolt-{}.tmp", std::process::id()));
-    let fail = |e: std::io::Error| CliError::fail(format!("writing {}: {e}", path.display()));
     let result = (|| {
         let f = std::fs::File::create(&tmp)?;
         let mut w = std::io::BufWriter::with_capacity(64 * 1024, f);

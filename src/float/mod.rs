@@ -109,7 +109,7 @@ pub enum FloatError {
     NoFloatSection {
         /// The profile asked for.
         profile: String,
-        /// Built-in profiles that do have a [float] section.
+        /// Built-in profiles that do have a `[float]` section.
         with_float: Vec<String>,
     },
     /// A unit with no cells.
