@@ -358,9 +358,10 @@ pub struct UnitReport {
     pub profile: String,
     /// Recommended action.
     pub action: Action,
-    /// State of charge at the latest reading (None for a unit on float, and
-    /// for one with a suspect shorted cell, whose reading gives no charge of
-    /// the whole unit).
+    /// State of charge at the latest reading (None for a unit on float, for
+    /// one with a suspect shorted cell, and for a voltage that no cell count
+    /// explains without a hydrometer reading: those give no charge of the
+    /// whole unit).
     pub soc_percent: Option<f64>,
     /// Its 95 % interval.
     pub soc_interval_percent: Option<[f64; 2]>,
@@ -771,8 +772,13 @@ fn judge_unit(
                 // With a cell shorted the reading lies below the curve for the
                 // whole unit and says nothing of its charge: a 0 % would read
                 // as a flat battery. The flag's detail gives the charge of the
-                // cells that are left.
-                if !a.has(FlagCode::SuspectShortedCell) {
+                // cells that are left. A voltage that no cell count explains
+                // (a probe off the post, the wrong battery) says nothing
+                // either, unless a hydrometer reading gave the charge.
+                let no_charge = a.has(FlagCode::SuspectShortedCell)
+                    || (a.soc_basis == "volts"
+                        && (a.has(FlagCode::CheckConnection) || a.has(FlagCode::WrongCellCount)));
+                if !no_charge {
                     soc = Some(round(a.soc_percent, 1));
                     interval = Some([
                         round(a.soc_interval_percent[0], 1),
