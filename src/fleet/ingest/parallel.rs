@@ -23,7 +23,7 @@ use super::{
 use std::io::{self, Read};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
-use std::sync::{Arc, Mutex};
+use std::sync::Mutex;
 
 /// Target size of a chunk.
 pub const CHUNK_BYTES: usize = 256 << 10;
@@ -182,7 +182,7 @@ where
     let chunk_bytes = how.chunk_bytes.max(64);
     let stop = AtomicBool::new(false);
     let (chunk_tx, chunk_rx) = sync_channel::<Chunk>(threads * 2);
-    let chunk_rx = Arc::new(Mutex::new(chunk_rx));
+    let chunk_rx = Mutex::new(chunk_rx);
     let (piece_tx, piece_rx) = sync_channel::<Result<Piece<T>, Failure>>(threads * 2);
     let mut counts = RecordCounts::default();
     let mut first_failure: Option<Failure> = None;
@@ -207,10 +207,10 @@ where
             });
         }
         for _ in 0..threads {
-            let (chunk_rx, piece_tx) = (Arc::clone(&chunk_rx), piece_tx.clone());
+            let (chunk_rx, piece_tx) = (&chunk_rx, piece_tx.clone());
             let mut parser = parser.clone();
             let stop = &stop;
-            scope.spawn(move || work(name, &chunk_rx, &piece_tx, &mut parser, map, stop));
+            scope.spawn(move || work(name, chunk_rx, &piece_tx, &mut parser, map, stop));
         }
         drop(piece_tx);
         let mut done = 0u64;
