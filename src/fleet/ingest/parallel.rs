@@ -243,18 +243,21 @@ where
     Ok(stats)
 }
 
-/// The end of the first record of `body` (the header), if a line end ends it.
+/// The end of the first record of `body` (the header), if a line end ends
+/// it. Empty lines before it are skipped, as the CSV reader skips them.
 fn cut_point_first(body: &[u8], delimiter: u8) -> Option<usize> {
-    let first_lf = body.iter().position(|&b| b == b'\n')?;
-    if !body[..first_lf].contains(&b'"') {
-        return Some(first_lf + 1);
+    let start = body.iter().position(|&b| b != b'\n' && b != b'\r')?;
+    let rest = &body[start..];
+    let first_lf = rest.iter().position(|&b| b == b'\n')?;
+    if !rest[..first_lf].contains(&b'"') {
+        return Some(start + first_lf + 1);
     }
     // A quote in the header line: take the first line end outside quotes.
-    (1..=body.len())
-        .filter(|&end| body[end - 1] == b'\n')
-        .find(|&end| cut_point(&body[..end], delimiter) == Some(end))
+    (1..=rest.len())
+        .filter(|&end| rest[end - 1] == b'\n')
+        .find(|&end| cut_point(&rest[..end], delimiter) == Some(end))
+        .map(|end| start + end)
 }
-
 /// The reader thread: cut the input into chunks at record ends.
 #[allow(clippy::too_many_arguments)]
 fn cut_chunks<R: Read>(
@@ -410,5 +413,8 @@ mod tests {
             Some(16)
         );
         assert_eq!(cut_point_first(b"unit_id,volts", b','), None);
+        // Empty lines before the header are skipped, as the CSV reader does.
+        assert_eq!(cut_point_first(b"\n\r\nunit_id\n1\n", b','), Some(11));
+        assert_eq!(cut_point_first(b"\n\n", b','), None);
     }
 }
