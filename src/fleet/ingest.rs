@@ -412,10 +412,60 @@ struct LineGuard<R> {
     pending: std::collections::VecDeque<u64>,
     /// `\n` bytes behind finished records.
     passed: u64,
+    /// The field delimiter, for [`Quoting`].
+    delimiter: u8,
+    /// Quoting state after the last byte delivered.
+    quoting: Quoting,
+    /// Whether the input has ended.
+    eof: bool,
+}
+
+/// Quoting state of the CSV reader at a byte, as far as record ends go (the
+/// csv crate's rules: a quote opens a quoted field only at the start of a
+/// field, `""` inside one is a quote).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Quoting {
+    /// At the start of a field.
+    FieldStart,
+    /// In an unquoted field (a quote here is a plain character).
+    Unquoted,
+    /// In a quoted field.
+    Quoted,
+    /// Just after a quote inside a quoted field: `"` again is an escaped quote.
+    QuoteInQuoted,
+}
+
+impl Quoting {
+    /// The state after byte `b`.
+    fn step(self, b: u8, delimiter: u8) -> Quoting {
+        match self {
+            Quoting::Quoted if b == b'"' => Quoting::QuoteInQuoted,
+            Quoting::Quoted => Quoting::Quoted,
+            Quoting::QuoteInQuoted if b == b'"' => Quoting::Quoted,
+            Quoting::FieldStart if b == b'"' => Quoting::Quoted,
+            _ if matches!(b, b'\n' | b'\r') || b == delimiter => Quoting::FieldStart,
+            _ => Quoting::Unquoted,
+        }
+    }
+
+    /// The state after `bytes`.
+    fn after(self, bytes: &[u8], delimiter: u8) -> Quoting {
+        let Some(&last) = bytes.last() else {
+            return self;
+        };
+        if self != Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
+            // No quote: only the last byte decides between the two outside states.
+            return Quoting::Unquoted.step(last, delimiter);
+        }
+        if self == Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
+            return Quoting::Quoted;
+        }
+        bytes.iter().fold(self, |q, &b| q.step(b, delimiter))
+    }
 }
 
 impl<R> LineGuard<R> {
-    fn new(inner: R) -> Self {
+    fn new(inner: R, delimiter: u8) -> Self {
         LineGuard {
             inner,
             run: 0,
@@ -423,6 +473,9 @@ impl<R> LineGuard<R> {
             offset: 0,
             pending: std::collections::VecDeque::new(),
             passed: 0,
+            delimiter,
+            quoting: Quoting::FieldStart,
+            eof: false,
         }
     }
 
@@ -437,6 +490,11 @@ impl<R> LineGuard<R> {
             self.pending.pop_front();
             self.passed += 1;
             own_terminator = o + 1 == end;
+        }
+        // A quoted field left open at the end of the input ends its record
+        // with its own content, not a terminator.
+        if self.eof && end == self.offset && self.quoting == Quoting::Quoted {
+            own_terminator = false;
         }
         (1 + self.passed)
             .saturating_sub(u64::from(own_terminator))
@@ -454,6 +512,10 @@ impl<R: Read> Read for LineGuard<R> {
     fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
         let n = self.inner.read(out)?;
         let chunk = &out[..n];
+        if n == 0 {
+            self.eof = !out.is_empty();
+        }
+        self.quoting = self.quoting.after(chunk, self.delimiter);
         for i in memchr::memchr_iter(b'\n', chunk) {
             self.pending.push_back(self.offset + i as u64);
         }
@@ -1159,7 +1221,7 @@ fn csv_reader<R: Read>(input: R, delimiter: u8) -> csv::Reader<LineGuard<R>> {
         .has_headers(false)
         .flexible(true)
         .buffer_capacity(64 * 1024)
-        .from_reader(LineGuard::new(input))
+        .from_reader(LineGuard::new(input, delimiter))
 }
 
 /// A whole-input error from the CSV reader, at the line it reached.
@@ -1629,6 +1691,36 @@ mod tests {
         assert!(stats.notices.iter().any(|n| n.contains("no readings")));
         // Without a final line end the header is still a header.
         assert!(run("unit_id,taken_at,volts,profile").is_ok());
+    }
+
+    #[test]
+    fn a_quoted_field_left_open_at_the_end_keeps_its_line() {
+        // The open quote swallows the line end: the record is still the one
+        // that starts on line 3.
+        let (_, rejects, _) =
+            run("unit_id,taken_at,volts,profile\nA,2024-03-01 08:00,12.6,agm\nB,\":\n").unwrap();
+        assert_eq!(rejects.len(), 1, "{rejects:?}");
+        assert_eq!(rejects[0].line, 3, "{rejects:?}");
+    }
+
+    #[test]
+    fn the_quoting_state_skips_quote_free_bytes_correctly() {
+        // The shortcut for bytes without a quote must give what stepping
+        // through every byte gives, from every state and cut anywhere.
+        let text = b"a,\"b\"\"c\nd\",e\nf\"g,h\n\"i\n";
+        let states = [
+            Quoting::FieldStart,
+            Quoting::Unquoted,
+            Quoting::Quoted,
+            Quoting::QuoteInQuoted,
+        ];
+        for start in states {
+            let want = text.iter().fold(start, |q, &b| q.step(b, b','));
+            for cut in 0..=text.len() {
+                let got = start.after(&text[..cut], b',').after(&text[cut..], b',');
+                assert_eq!(got, want, "from {start:?}, cut at {cut}");
+            }
+        }
     }
 
     #[test]

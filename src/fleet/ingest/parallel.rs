@@ -18,7 +18,8 @@
 
 use super::{
     csv_error, csv_reader, parse_header, read_prefix, read_records, record_line, FleetRow,
-    IngestError, IngestOptions, IngestStats, RecordCounts, Rejected, RowParser, MAX_LINE_BYTES,
+    IngestError, IngestOptions, IngestStats, Quoting, RecordCounts, Rejected, RowParser,
+    MAX_LINE_BYTES,
 };
 use std::io::{self, Read};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -73,19 +74,6 @@ struct Piece<T> {
 /// in the input is the one reported, as on one thread.
 type Failure = (u64, IngestError);
 
-/// Quoting state of the CSV reader at a byte, as far as record ends go.
-#[derive(Clone, Copy, PartialEq, Eq)]
-enum Quoting {
-    /// At the start of a field.
-    FieldStart,
-    /// In an unquoted field (a quote here is a plain character).
-    Unquoted,
-    /// In a quoted field.
-    Quoted,
-    /// Just after a quote inside a quoted field: `"` again is an escaped quote.
-    QuoteInQuoted,
-}
-
 /// The offset just after the last byte of `buf` that ends a record: the last
 /// `\n` outside quotes, else the last such `\r` (old Mac line ends). `buf`
 /// starts at the start of a record.
@@ -98,21 +86,8 @@ fn cut_point(buf: &[u8], delimiter: u8) -> Option<usize> {
     let (mut last_lf, mut last_cr) = (None, None);
     let mut state = Quoting::FieldStart;
     for (i, &b) in buf.iter().enumerate() {
-        let ends_record = matches!(b, b'\n' | b'\r');
-        state = match state {
-            Quoting::Quoted => {
-                if b == b'"' {
-                    Quoting::QuoteInQuoted
-                } else {
-                    Quoting::Quoted
-                }
-            }
-            Quoting::QuoteInQuoted if b == b'"' => Quoting::Quoted,
-            Quoting::FieldStart if b == b'"' => Quoting::Quoted,
-            _ if ends_record || b == delimiter => Quoting::FieldStart,
-            _ => Quoting::Unquoted,
-        };
-        if ends_record && state == Quoting::FieldStart {
+        state = state.step(b, delimiter);
+        if matches!(b, b'\n' | b'\r') && state == Quoting::FieldStart {
             if b == b'\n' {
                 last_lf = Some(i + 1);
             } else {
