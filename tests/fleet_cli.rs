@@ -46,6 +46,10 @@ fn injected_faults_are_flagged_with_the_expected_action() {
         ("TD-V03", "sulfation-risk", "recharge-now"),
         ("TD-V05", "short-rest", "remeasure"),
         ("CH-B3", "check-connection", "remeasure"),
+        // Six rested readings falling about 17 % per 30 days, against the
+        // profile's 3 % self-discharge: faster than twice that with 95 %
+        // confidence (Student's t on the least-squares slope).
+        ("TD-V03", "fast-decline", "recharge-now"),
         ("FM-C07", "low-cell-sg", "recharge-now"),
         ("TD-V09", "post-charge-shortfall", "recharge-now"),
         ("CH-A2", "peer-outlier", "recharge-now"),
@@ -228,6 +232,19 @@ fn generated_fleet_round_trips_through_the_analysis() {
             .map(|u| u["action"].as_str().unwrap().to_string())
     };
     let faults = key["faulty_units"].as_object().unwrap();
+    // No healthy unit, and no unit whose only fault is one low last reading
+    // (a post-charge shortfall), is called a fast decline: one point is a
+    // step, not a trend.
+    for u in v["units"].as_array().unwrap() {
+        let id = u["unit_id"].as_str().unwrap();
+        let fault = faults.get(id).and_then(Value::as_str).unwrap_or("healthy");
+        if matches!(fault, "healthy" | "post-charge-shortfall") {
+            assert!(
+                !flags(u).contains(&"fast-decline".to_string()),
+                "{id} ({fault})"
+            );
+        }
+    }
     let mut checked = 0;
     for (id, fault) in faults {
         let want = match fault.as_str().unwrap() {

@@ -820,13 +820,22 @@ fn judge_unit(
         .self_discharge
         .soc_percent_per_30_days_at_25c
         .value;
-    if let (Some(slope), true) = (trend, s.trend_n >= 3) {
-        if slope < -rules.get(RuleId::TrendFactor) * expected {
+    // The decline must be faster than the limit with 95 % confidence, not
+    // only on its face: a few readings a percent or two apart otherwise make
+    // a steep slope out of meter noise. One-sided bound with Student's t at
+    // n − 2 degrees of freedom (ordinary least squares; statrs).
+    if let (Some(slope), Some(se)) = (trend, s.trend_standard_error_percent_per_30_days()) {
+        let limit = -rules.get(RuleId::TrendFactor) * expected;
+        let t95 = statrs::distribution::StudentsT::new(0.0, 1.0, (s.trend_n - 2) as f64)
+            .map(|d| statrs::distribution::ContinuousCDF::inverse_cdf(&d, 0.95))
+            .unwrap_or(f64::INFINITY);
+        let bound = slope + t95 * se;
+        if bound < limit {
             flags.push("fast-decline".into());
             reasons.push(reason(
                 Action::CapacityTest,
                 RuleId::TrendFactor,
-                format!("rested charge falls {:.1} % per 30 days over {} readings; the profile expects about {expected} %", -slope, s.trend_n),
+                format!("falls {:.1} % per 30 days (≥ {:.1} % at 95 % confidence, {} rested readings); expected about {expected} %", -slope, -bound, s.trend_n),
                 rules,
             ));
         }

@@ -138,6 +138,8 @@ pub struct UnitSummary {
     pub trend_sum_s: i128,
     /// Σ t·soc.
     pub trend_sum_ts: i128,
+    /// Σ soc² (for the trend's standard error).
+    pub trend_sum_ss: i128,
     /// Readings with a temperature.
     pub temp_n: i64,
     /// Σ heat-ageing factor (1e-6 units).
@@ -207,6 +209,7 @@ impl UnitSummary {
             self.trend_sum_tt += t * t;
             self.trend_sum_s += s;
             self.trend_sum_ts += t * s;
+            self.trend_sum_ss += s * s;
         }
         if let Some(t) = row.temperature {
             let q = (t.0 * 1000.0).round() as i64;
@@ -290,6 +293,7 @@ impl UnitSummary {
         self.trend_sum_tt += other.trend_sum_tt;
         self.trend_sum_s += other.trend_sum_s;
         self.trend_sum_ts += other.trend_sum_ts;
+        self.trend_sum_ss += other.trend_sum_ss;
         self.temp_n += other.temp_n;
         self.ageing_sum += other.ageing_sum;
         self.coldest_milli_c = match (self.coldest_milli_c, other.coldest_milli_c) {
@@ -333,6 +337,27 @@ impl UnitSummary {
         Some(per_minute * 60.0 * 24.0 * 30.0)
     }
 
+    /// Standard error of [`UnitSummary::trend_percent_per_30_days`] (ordinary
+    /// least squares: residual variance over n − 2 degrees of freedom, divided
+    /// by the spread of the times), when three or more readings span time.
+    pub fn trend_standard_error_percent_per_30_days(&self) -> Option<f64> {
+        let n = self.trend_n as i128;
+        if n < 3 {
+            return None;
+        }
+        // n times the centred sums, exact in integers; the squares in f64.
+        let sxx = n * self.trend_sum_tt - self.trend_sum_t * self.trend_sum_t;
+        if sxx <= 0 {
+            return None;
+        }
+        let sxy = (n * self.trend_sum_ts - self.trend_sum_t * self.trend_sum_s) as f64;
+        let syy = (n * self.trend_sum_ss - self.trend_sum_s * self.trend_sum_s) as f64;
+        let (nf, sxx) = (n as f64, sxx as f64);
+        let residual = ((syy - sxy * sxy / sxx) / nf).max(0.0);
+        let per_minute = (residual / (nf - 2.0) / (sxx / nf)).sqrt() / SOC_SCALE;
+        Some(per_minute * 60.0 * 24.0 * 30.0)
+    }
+
     /// Mean heat-ageing factor over readings with a temperature.
     pub fn ageing_factor(&self) -> Option<f64> {
         (self.temp_n > 0).then(|| self.ageing_sum as f64 / AGEING_SCALE / self.temp_n as f64)
@@ -349,5 +374,79 @@ impl UnitSummary {
             .windows(2)
             .filter(|w| w[0].taken_at == w[1].taken_at)
             .count() as u64
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A summary holding only the trend sums of `points` (minutes, 0.001 %).
+    fn trend_of(points: &[(i64, i64)]) -> UnitSummary {
+        let mut s = UnitSummary::default();
+        for &(t, q) in points {
+            let (t, q) = (t as i128, q as i128);
+            s.trend_n += 1;
+            s.trend_sum_t += t;
+            s.trend_sum_tt += t * t;
+            s.trend_sum_s += q;
+            s.trend_sum_ts += t * q;
+            s.trend_sum_ss += q * q;
+        }
+        s
+    }
+
+    #[test]
+    fn the_trend_and_its_standard_error_are_the_least_squares_ones() {
+        // From memory: for y = a + b·x by ordinary least squares,
+        // b = Sxy/Sxx and SE(b) = sqrt(SSE/(n − 2)/Sxx) with centred sums
+        // (any regression text). Computed here the plain two-pass way.
+        let day = 1440;
+        let t0 = 12_000_000;
+        let points: Vec<(i64, i64)> = [
+            (0, 92_000),
+            (7, 90_500),
+            (14, 88_900),
+            (21, 88_100),
+            (28, 85_700),
+            (35, 84_600),
+        ]
+        .iter()
+        .map(|&(d, q)| (t0 + d * day, q))
+        .collect();
+        let n = points.len() as f64;
+        let mx = points.iter().map(|p| p.0 as f64).sum::<f64>() / n;
+        let my = points.iter().map(|p| p.1 as f64).sum::<f64>() / n;
+        let sxx: f64 = points.iter().map(|p| (p.0 as f64 - mx).powi(2)).sum();
+        let sxy: f64 = points
+            .iter()
+            .map(|p| (p.0 as f64 - mx) * (p.1 as f64 - my))
+            .sum();
+        let b = sxy / sxx;
+        let sse: f64 = points
+            .iter()
+            .map(|p| (p.1 as f64 - my - b * (p.0 as f64 - mx)).powi(2))
+            .sum();
+        let per_30_days = 1440.0 * 30.0 / 1000.0;
+        let want_slope = b * per_30_days;
+        let want_se = (sse / (n - 2.0) / sxx).sqrt() * per_30_days;
+        let s = trend_of(&points);
+        let slope = s.trend_percent_per_30_days().unwrap();
+        let se = s.trend_standard_error_percent_per_30_days().unwrap();
+        assert!((slope - want_slope).abs() < 1e-9, "{slope} vs {want_slope}");
+        assert!(
+            (se - want_se).abs() < 1e-9 * want_se.max(1.0),
+            "{se} vs {want_se}"
+        );
+        // About −6.2 % per 30 days, known to a few tenths.
+        assert!(slope < -5.0 && se > 0.05 && se < 1.0, "{slope} ± {se}");
+    }
+
+    #[test]
+    fn a_straight_line_has_no_error_and_two_points_no_estimate() {
+        let s = trend_of(&[(0, 90_000), (1440, 89_000), (2880, 88_000)]);
+        assert!(s.trend_standard_error_percent_per_30_days().unwrap() < 1e-9);
+        let s = trend_of(&[(0, 90_000), (1440, 89_000)]);
+        assert_eq!(s.trend_standard_error_percent_per_30_days(), None);
     }
 }

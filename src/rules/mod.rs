@@ -50,7 +50,7 @@ rules! {
         "standard uncertainty of one hydrometer reading (graduation, parallax, float calibration)",
         "common practice: float hydrometers are graduated in 0.002–0.005"),
     TrendFactor => ("trend-factor", 2.0, "× expected",
-        "a falling state-of-charge trend faster than this multiple of the profile's self-discharge is abnormal",
+        "a falling state-of-charge trend faster than this multiple of the profile's self-discharge (with 95 % confidence) is abnormal",
         "common practice"),
     SulfationDays => ("sulfation-days", 30.0, "days",
         "days spent below the recharge threshold before sulfation is a risk",
