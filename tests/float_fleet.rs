@@ -872,3 +872,54 @@ fn a_float_reading_that_cannot_be_checked_is_remeasured_and_its_string_still_che
     );
     assert!(s["notes"].to_string().contains("not checked: HS-B2"));
 }
+
+#[test]
+fn in_a_warm_cabinet_the_three_faults_raise_exactly_their_flags() {
+    // The fixture's second visit moved into a cabinet 7 K warmer, the cells
+    // now 8–9 K above the room and the hot one 10.5 K above it: more than the
+    // rules table's 10 K for a VRLA unit over ambient, yet within 3 K of its
+    // neighbours (FIST 3-6 §1.5, published), so no temperature spread. The
+    // low cell, the hot cell and the rising current then raise exactly their
+    // own flags, and every other cell none.
+    let text: String = std::fs::read_to_string(fixture("float-string.csv"))
+        .unwrap()
+        .lines()
+        .map(|l| {
+            let mut f: Vec<String> = l.split(',').map(str::to_string).collect();
+            if f[0].starts_with("U1-") && f[5].starts_with("2026-04-06") {
+                let t: f64 = f[8].parse().unwrap();
+                f[8] = if f[0] == "U1-C09" {
+                    "33.5".into()
+                } else {
+                    format!("{:.1}", t + 7.0)
+                };
+            }
+            f.join(",") + "\n"
+        })
+        .collect();
+    let dir = common::tmp();
+    let path = dir.path().join("warm.csv");
+    std::fs::write(&path, text).unwrap();
+    let v = fleet_json(&path);
+    let ups = string(&v, "Fixture UPS room / UPS-1");
+    assert_eq!(
+        flags(&ups["flags"]),
+        set(&[("thermal-runaway-risk", "float-current-rise")])
+    );
+    assert_eq!(
+        flagged_units(ups),
+        [
+            (
+                "U1-C05".to_string(),
+                set(&[
+                    ("float-deviation", "float-deviation"),
+                    ("float-low", "float-window")
+                ])
+            ),
+            (
+                "U1-C09".to_string(),
+                set(&[("thermal-runaway-risk", "vrla-over-ambient")])
+            ),
+        ]
+    );
+}
