@@ -96,6 +96,15 @@ pub enum FlagCode {
 }
 
 impl FlagCode {
+    /// Flags that say the voltage does not measure the unit's charge at all
+    /// (a probe off the post, the wrong cell count, a shorted cell): its state
+    /// of charge, if any, comes from the hydrometer alone.
+    pub const DISCREDIT_VOLTAGE: [FlagCode; 3] = [
+        FlagCode::CheckConnection,
+        FlagCode::WrongCellCount,
+        FlagCode::SuspectShortedCell,
+    ];
+
     /// The code as printed.
     pub fn as_str(self) -> &'static str {
         match self {
@@ -297,6 +306,11 @@ impl Assessment {
     pub fn has(&self, code: FlagCode) -> bool {
         self.flags.iter().any(|f| f.code == code)
     }
+
+    /// Whether a [`FlagCode::DISCREDIT_VOLTAGE`] flag was raised.
+    pub fn voltage_discredited(&self) -> bool {
+        FlagCode::DISCREDIT_VOLTAGE.into_iter().any(|c| self.has(c))
+    }
 }
 
 /// A reading that cannot be assessed at all.
@@ -424,13 +438,9 @@ fn core(
         )?)
     };
 
-    let untrusted_voltage = [
-        FlagCode::CheckConnection,
-        FlagCode::WrongCellCount,
-        FlagCode::SuspectShortedCell,
-    ]
-    .into_iter()
-    .any(|c| flags.has(c));
+    let untrusted_voltage = FlagCode::DISCREDIT_VOLTAGE
+        .into_iter()
+        .any(|c| flags.has(c));
     let (soc, interval, basis) = match (&volts_part, &sg_part) {
         (Some(v), None) => (v.soc, v.interval, "volts"),
         (None, Some(s)) => (s.soc_percent, s.soc_interval_percent, "sg"),
@@ -513,6 +523,11 @@ impl Estimate {
     /// Whether a flag was raised.
     pub fn has(&self, code: FlagCode) -> bool {
         self.flags.contains(&code)
+    }
+
+    /// Whether a [`FlagCode::DISCREDIT_VOLTAGE`] flag was raised.
+    pub fn voltage_discredited(&self) -> bool {
+        FlagCode::DISCREDIT_VOLTAGE.into_iter().any(|c| self.has(c))
     }
 }
 

@@ -295,11 +295,7 @@ fn row_soc(
     let rested = !short && (row.rest.is_some() || row.after == After::Idle);
     let reading = to_reading(row);
     match estimate(p, &reading, &settings.setup, &settings.rules) {
-        Ok(a)
-            if !a.has(FlagCode::CheckConnection)
-                && !a.has(FlagCode::WrongCellCount)
-                && !a.has(FlagCode::SuspectShortedCell) =>
-        {
+        Ok(a) if !a.voltage_discredited() => {
             (Some((a.soc_percent, a.soc_interval_percent)), rested, short)
         }
         _ => (None, false, short),
@@ -776,8 +772,7 @@ fn judge_unit(
                 // (a probe off the post, the wrong battery) says nothing
                 // either, unless a hydrometer reading gave the charge.
                 let no_charge = a.has(FlagCode::SuspectShortedCell)
-                    || (a.soc_basis == "volts"
-                        && (a.has(FlagCode::CheckConnection) || a.has(FlagCode::WrongCellCount)));
+                    || (a.soc_basis == "volts" && a.voltage_discredited());
                 if !no_charge {
                     soc = Some(round(a.soc_percent, 1));
                     interval = Some([
@@ -786,9 +781,7 @@ fn judge_unit(
                     ]);
                 }
                 let trusted = matches!(a.rest.status, RestStatus::Settled | RestStatus::Usable)
-                    && !a.has(FlagCode::CheckConnection)
-                    && !a.has(FlagCode::WrongCellCount)
-                    && !a.has(FlagCode::SuspectShortedCell);
+                    && !a.voltage_discredited();
                 if trusted {
                     ocv_cell = a.ocv_per_cell_25c_volts;
                 }

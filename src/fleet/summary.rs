@@ -164,6 +164,14 @@ pub struct UnitSummary {
     pub latest_row: Option<Box<FleetRow>>,
 }
 
+/// Both values combined by `pick`, or whichever is there.
+fn either<T>(a: Option<T>, b: Option<T>, pick: fn(T, T) -> T) -> Option<T> {
+    match (a, b) {
+        (Some(a), Some(b)) => Some(pick(a, b)),
+        (a, b) => a.or(b),
+    }
+}
+
 /// Add capacities to a kept set: ascending, distinct, the smallest
 /// [`CAPACITIES_KEPT`] (a function of the set, so merging is order-free).
 fn add_capacities(kept: &mut Vec<f64>, more: &[f64]) {
@@ -296,22 +304,10 @@ impl UnitSummary {
         self.trend_sum_ss += other.trend_sum_ss;
         self.temp_n += other.temp_n;
         self.ageing_sum += other.ageing_sum;
-        self.coldest_milli_c = match (self.coldest_milli_c, other.coldest_milli_c) {
-            (Some(a), Some(b)) => Some(a.min(b)),
-            (a, b) => a.or(b),
-        };
-        self.hottest_milli_c = match (self.hottest_milli_c, other.hottest_milli_c) {
-            (Some(a), Some(b)) => Some(a.max(b)),
-            (a, b) => a.or(b),
-        };
-        self.first_ohmic = match (self.first_ohmic, other.first_ohmic) {
-            (Some(a), Some(b)) => Some(a.min(b)),
-            (a, b) => a.or(b),
-        };
-        self.first_at = match (self.first_at, other.first_at) {
-            (Some(a), Some(b)) => Some(a.min(b)),
-            (a, b) => a.or(b),
-        };
+        self.coldest_milli_c = either(self.coldest_milli_c, other.coldest_milli_c, Ord::min);
+        self.hottest_milli_c = either(self.hottest_milli_c, other.hottest_milli_c, Ord::max);
+        self.first_ohmic = either(self.first_ohmic, other.first_ohmic, Ord::min);
+        self.first_at = either(self.first_at, other.first_at, Ord::min);
         add_capacities(&mut self.capacities_ah, &other.capacities_ah);
         if let (Some(point), Some(row)) = (other.history.last(), other.latest_row) {
             let point = point.clone();

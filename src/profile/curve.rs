@@ -66,6 +66,43 @@ fn bezier_slope(nt: f64, [a, u, v, b]: [f64; 4]) -> f64 {
     3. * ((u - a) * one_t * one_t + 2. * (v - u) * one_t * nt + (b - v) * nt * nt)
 }
 
+/// The root of an increasing `f` (given as value and slope) in the bracket
+/// `(lo, hi)`, whose ends straddle it: Newton steps from `start`, replaced by
+/// bisection whenever one would leave the shrinking bracket, until a step or
+/// the bracket is below `tolerance`. Shared by the curve's inverse and the
+/// temperature referral, which solve the same way.
+pub(crate) fn bracketed_newton(
+    f: impl Fn(f64) -> (f64, f64),
+    (mut lo, mut hi): (f64, f64),
+    start: f64,
+    tolerance: f64,
+) -> f64 {
+    let mut x = start;
+    for _ in 0..100 {
+        let (value, slope) = f(x);
+        if value == 0.0 {
+            break;
+        }
+        if value < 0.0 {
+            lo = x;
+        } else {
+            hi = x;
+        }
+        let newton = x - value / slope;
+        let next = if slope > 0.0 && (lo..=hi).contains(&newton) {
+            newton
+        } else {
+            0.5 * (lo + hi)
+        };
+        let done = (next - x).abs() <= tolerance || hi - lo <= tolerance;
+        x = next;
+        if done {
+            break;
+        }
+    }
+    x
+}
+
 /// The index `i` of the segment `[xs[i], xs[i+1]]` holding `x` (clamped to the ends).
 fn segment_of(xs: &[f64], x: f64) -> usize {
     let last = xs.len().saturating_sub(2);
@@ -301,38 +338,17 @@ impl MonotoneCurve {
         let j = segment_of(&self.volts_per_cell, v);
         let seg = self.segments[j];
         let (x0, x1) = (self.soc_percent[j], self.soc_percent[j + 1]);
-        // The segment's Bézier is increasing in nt, so [lo, hi] always brackets
-        // the root; a Newton step that leaves the bracket is replaced by bisection.
-        let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
+        // The segment's Bézier rises with nt, so [0, 1] brackets the root.
         let chord = (v - seg[0]) / (seg[3] - seg[0]);
-        let mut nt = guess
+        let start = guess
             .map_or(chord, |g| (g - x0) / (x1 - x0))
             .clamp(0.0, 1.0);
-        for _ in 0..64 {
-            let f = bezier(nt, seg) - v;
-            if f == 0.0 {
-                break;
-            }
-            if f < 0.0 {
-                lo = nt;
-            } else {
-                hi = nt;
-            }
-            let d = bezier_slope(nt, seg);
-            let newton = nt - f / d;
-            let next = if d > 0.0 && (lo..=hi).contains(&newton) {
-                newton
-            } else {
-                0.5 * (lo + hi)
-            };
-            // 1e-12 of a segment is below 1e-10 % of charge; finer steps only
-            // chase the rounding noise of the Bézier sum.
-            let done = (next - nt).abs() <= 1e-12 || hi - lo <= 1e-12;
-            nt = next;
-            if done {
-                break;
-            }
-        }
+        let nt = bracketed_newton(
+            |nt| (bezier(nt, seg) - v, bezier_slope(nt, seg)),
+            (0.0, 1.0),
+            start,
+            1e-12,
+        );
         x0 + nt * (x1 - x0)
     }
 
@@ -379,10 +395,9 @@ mod tests {
         p.iter().map(|(s, v)| (SocPercent(*s), Volts(*v))).collect()
     }
 
-    #[test]
-    fn evaluation_is_the_splines_crates_to_the_last_bit() {
-        // Reference: the `splines` crate's own sampling of the same keys.
-        let c = MonotoneCurve::new(&pts(&[
+    /// Uneven segments, steep and shallow, like a real rest-voltage curve.
+    fn six_point_curve() -> MonotoneCurve {
+        MonotoneCurve::new(&pts(&[
             (0.0, 1.95),
             (10.0, 1.97),
             (35.0, 2.02),
@@ -390,7 +405,13 @@ mod tests {
             (80.0, 2.09),
             (100.0, 2.12),
         ]))
-        .unwrap();
+        .unwrap()
+    }
+
+    #[test]
+    fn evaluation_is_the_splines_crates_to_the_last_bit() {
+        // Reference: the `splines` crate's own sampling of the same keys.
+        let c = six_point_curve();
         for i in 0..=10_000 {
             let s = SocPercent(-1.0 + i as f64 * 102.0 / 10_000.0);
             assert_eq!(
@@ -404,15 +425,7 @@ mod tests {
 
     #[test]
     fn inverse_round_trips_on_every_segment() {
-        let c = MonotoneCurve::new(&pts(&[
-            (0.0, 1.95),
-            (10.0, 1.97),
-            (35.0, 2.02),
-            (50.0, 2.04),
-            (80.0, 2.09),
-            (100.0, 2.12),
-        ]))
-        .unwrap();
+        let c = six_point_curve();
         for i in 1..1000 {
             let s = i as f64 / 10.0;
             let v = c.volts_at(SocPercent(s));

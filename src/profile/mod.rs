@@ -264,8 +264,8 @@ impl Profile {
     /// A rest voltage per cell read at `t`, referred to 25 °C: the state of
     /// charge `s` whose open-circuit voltage at `t` is the reading, that is
     /// `V25(s) + k(s)·(t − 25 °C) = v` with `k` the coefficient at `s`, and
-    /// then `v − k(s)·(t − 25 °C)`. Solved as one equation (Newton steps kept
-    /// inside a bracket), to 1e-10 % of charge. Beyond the curve's ends the
+    /// then `v − k(s)·(t − 25 °C)`. Solved as one equation
+    /// (`curve::bracketed_newton`), to 1e-10 % of charge. Beyond the curve's ends the
     /// state of charge clamps and the coefficient is the end's.
     pub fn refer_to_25c(&self, volts_per_cell: Volts, t: Celsius) -> Referred {
         let v = volts_per_cell.0;
@@ -296,34 +296,12 @@ impl Profile {
         }
         let raw = self.curve.guess_soc(v).unwrap_or(0.5 * (s_lo + s_hi));
         let first_k = self.ocv_coefficient(SocPercent(raw)).0;
-        let mut s = self
+        let s = self
             .curve
             .guess_soc(v - first_k * dt)
             .unwrap_or(raw)
             .clamp(s_lo, s_hi);
-        let (mut lo, mut hi) = (s_lo, s_hi);
-        for _ in 0..100 {
-            let (f, d) = g(s);
-            if f == 0.0 {
-                break;
-            }
-            if f < 0.0 {
-                lo = s;
-            } else {
-                hi = s;
-            }
-            let newton = s - f / d;
-            let next = if d > 0.0 && newton > lo && newton < hi {
-                newton
-            } else {
-                0.5 * (lo + hi)
-            };
-            let done = (next - s).abs() <= 1e-10 || hi - lo <= 1e-10;
-            s = next;
-            if done {
-                break;
-            }
-        }
+        let s = curve::bracketed_newton(g, (s_lo, s_hi), s, 1e-10);
         let coefficient = self.ocv_coefficient(SocPercent(s));
         Referred {
             lookup: SocLookup {
