@@ -2,7 +2,7 @@
 
 use super::check::load_rules;
 use super::{output, CliError, CmdResult, EXIT_REJECTED_ROWS};
-use crate::fleet::analysis::{finish, finish_owned, FleetReport, FleetSettings, FleetState};
+use crate::fleet::analysis::{finish, finish_owned_on, FleetReport, FleetSettings, FleetState};
 use crate::fleet::ingest::{IngestOptions, Parallelism};
 use crate::profile::store::ProfileStore;
 use crate::report::{self, FormatKind, ReportContext};
@@ -148,7 +148,7 @@ pub fn analyse_files(
             eprintln!("restvolt: note: {n}");
         }
     }
-    Ok(finish_owned(state, store, settings))
+    Ok(finish_owned_on(state, store, settings, how.threads))
 }
 
 /// A progress bar on standard error, only when it is a terminal.

@@ -3,7 +3,9 @@
 //! The reference is always the plain one-pass, one-thread analysis of the
 //! same readings.
 
-use super::analysis::{finish, finish_owned, FleetSettings, FleetState};
+use super::analysis::{
+    finish, finish_owned, finish_owned_on, FleetSettings, FleetState, PARALLEL_JUDGING_UNITS,
+};
 use super::generate::{generate, GenerateOptions};
 use super::ingest::{IngestOptions, IngestStats, Parallelism};
 use crate::profile::store::ProfileStore;
@@ -257,5 +259,31 @@ fn judging_while_taking_the_state_apart_gives_the_same_report() {
         let got = finish_owned(state, &store, &FleetSettings::default());
         let got = serde_json::to_string_pretty(&got).unwrap();
         assert_same(&got, &want, name);
+    }
+}
+
+#[test]
+fn judging_on_several_threads_gives_the_same_report() {
+    let store = ProfileStore::builtin().unwrap();
+    // Enough units that the judging really is shared out.
+    let units = PARALLEL_JUDGING_UNITS as u32 + 97;
+    let mut text = Vec::new();
+    generate(
+        &GenerateOptions {
+            units,
+            days: 60,
+            seed: 11,
+            readings_per_unit: Some(3),
+        },
+        &mut text,
+    )
+    .unwrap();
+    let (state, _) = one_pass("generated.csv", &text, &store);
+    let want = report_json(&state, &store);
+    for threads in [2, 3, 8] {
+        let got = finish_owned_on(state.clone(), &store, &FleetSettings::default(), threads);
+        assert_eq!(got.units.len(), units as usize);
+        let got = serde_json::to_string_pretty(&got).unwrap();
+        assert_same(&got, &want, &format!("{threads} threads"));
     }
 }
