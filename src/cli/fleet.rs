@@ -97,6 +97,11 @@ fn parse_delimiter(s: &str) -> Result<u8, CliError> {
     }
 }
 
+/// The threads to use: the `--threads` value, else the default's.
+fn threads_for(threads: Option<usize>) -> usize {
+    threads.unwrap_or(Parallelism::default().threads)
+}
+
 /// Analyse readers into a report. Large files and standard input are read on
 /// `threads` threads (the result is the same: see `fleet::tests`).
 pub fn analyse_files(
@@ -106,10 +111,10 @@ pub fn analyse_files(
     opts: &IngestOptions,
     threads: Option<usize>,
 ) -> Result<FleetReport, CliError> {
-    let mut how = Parallelism::default();
-    if let Some(n) = threads {
-        how.threads = n;
-    }
+    let how = Parallelism {
+        threads: threads_for(threads),
+        ..Parallelism::default()
+    };
     let mut state = FleetState::default();
     for path in files {
         let name = path.display().to_string();
@@ -209,6 +214,7 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         args.output.as_deref(),
         &args.files,
         &args.name,
+        threads_for(args.threads.map(usize::from)),
     )?;
     Ok(if report.summary.rows_rejected > 0 {
         EXIT_REJECTED_ROWS
@@ -225,6 +231,7 @@ pub fn write_report(
     path: Option<&Path>,
     inputs: &[PathBuf],
     name: &str,
+    threads: usize,
 ) -> Result<(), CliError> {
     let to_terminal = path.is_none() && std::io::stdout().is_terminal();
     let ctx = ReportContext {
@@ -232,6 +239,7 @@ pub fn write_report(
         generated_at: chrono::Local::now().format("%Y-%m-%d %H:%M").to_string(),
         fleet_name: name.to_string(),
         colour: to_terminal && std::env::var_os("NO_COLOR").is_none(),
+        threads,
     };
     output::emit_with(path, inputs, &mut |w| {
         report::write(format, report, &ctx, w)
@@ -276,9 +284,9 @@ pub fn demo(args: DemoArgs, store: &ProfileStore) -> CmdResult {
     let report = finish(&state, store, &settings);
     let name = "Demo fleet: Larchmere Rural Networks (invented)";
     if let Some(p) = &args.html {
-        write_report(&report, store, FormatKind::Html, Some(p), &[], name)?;
+        write_report(&report, store, FormatKind::Html, Some(p), &[], name, 1)?;
     }
-    write_report(&report, store, args.format.into(), None, &[], name)?;
+    write_report(&report, store, args.format.into(), None, &[], name, 1)?;
     Ok(0)
 }
 

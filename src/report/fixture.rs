@@ -94,5 +94,6 @@ pub fn ctx(store: &ProfileStore) -> super::ReportContext<'_> {
         generated_at: "2024-02-11 07:30".into(),
         fleet_name: "Demo fleet <north & harbour>".into(),
         colour: false,
+        threads: 1,
     }
 }

@@ -41,6 +41,9 @@ pub struct ReportContext<'a> {
     /// ANSI colour in the terminal table (every other format ignores it). The
     /// caller passes false when stdout is not a terminal or `NO_COLOR` is set.
     pub colour: bool,
+    /// Threads a format may use to write a large report (JSON serializes the
+    /// units on them); the document is the same on any number.
+    pub threads: usize,
 }
 
 /// One output format of the fleet report.
