@@ -46,6 +46,10 @@ pub struct MonotoneCurve {
     /// State of charge at [`INVERSE_TABLE_POINTS`] voltages evenly spaced
     /// over the curve: Newton's first guess, so that it needs a step or two.
     inverse_table: Vec<f64>,
+    /// Segment lookup on the state-of-charge axis.
+    soc_index: SegmentIndex,
+    /// Segment lookup on the voltage axis.
+    volts_index: SegmentIndex,
 }
 
 /// Points of [`MonotoneCurve`]'s inverse table.
@@ -107,6 +111,54 @@ pub(crate) fn bracketed_newton(
 fn segment_of(xs: &[f64], x: f64) -> usize {
     let last = xs.len().saturating_sub(2);
     xs.partition_point(|&k| k <= x).saturating_sub(1).min(last)
+}
+
+/// Buckets per segment of a [`SegmentIndex`]: enough that a bucket seldom
+/// spans a knot even where the knots are uneven (the voltage axis).
+const BUCKETS_PER_SEGMENT: usize = 4;
+
+/// [`segment_of`] in constant time, for the solvers that call it for every
+/// reading: the axis is cut into equal buckets, each remembering the segment
+/// at its start, and the answer is walked to from there. The walk makes the
+/// result exactly [`segment_of`]'s whatever the rounding of the bucket
+/// (tested), so the table only saves the binary search.
+#[derive(Clone, Debug)]
+struct SegmentIndex {
+    origin: f64,
+    buckets_per_unit: f64,
+    first: Vec<usize>,
+}
+
+impl SegmentIndex {
+    /// The index of strictly increasing knots `xs` (at least two).
+    fn new(xs: &[f64]) -> SegmentIndex {
+        let buckets = BUCKETS_PER_SEGMENT * (xs.len() - 1);
+        let (origin, span) = (xs[0], xs[xs.len() - 1] - xs[0]);
+        let first = (0..buckets)
+            .map(|b| segment_of(xs, origin + span * b as f64 / buckets as f64))
+            .collect();
+        SegmentIndex {
+            origin,
+            buckets_per_unit: buckets as f64 / span,
+            first,
+        }
+    }
+
+    /// The segment of `xs` (the knots it was made from) holding `x`, as [`segment_of`].
+    fn find(&self, xs: &[f64], x: f64) -> usize {
+        let last = xs.len() - 2;
+        // Below the origin or NaN the cast gives 0; above the end, the last bucket.
+        let bucket =
+            (((x - self.origin) * self.buckets_per_unit) as usize).min(self.first.len() - 1);
+        let mut i = self.first[bucket];
+        while i < last && xs[i + 1] <= x {
+            i += 1;
+        }
+        while i > 0 && xs[i] > x {
+            i -= 1;
+        }
+        i
+    }
 }
 
 /// Why a set of points cannot make a curve.
@@ -209,6 +261,8 @@ impl MonotoneCurve {
             })
             .collect();
         let mut curve = MonotoneCurve {
+            soc_index: SegmentIndex::new(&xs),
+            volts_index: SegmentIndex::new(&ys),
             soc_percent: xs,
             volts_per_cell: ys,
             segments,
@@ -285,7 +339,7 @@ impl MonotoneCurve {
     /// [`MonotoneCurve::volts_at`] for solvers.
     pub(crate) fn volts_and_slope(&self, soc: SocPercent) -> (f64, f64) {
         let s = soc.0.clamp(self.soc_min().0, self.soc_max().0);
-        let i = segment_of(&self.soc_percent, s);
+        let i = self.soc_index.find(&self.soc_percent, s);
         let h = self.soc_percent[i + 1] - self.soc_percent[i];
         let nt = (s - self.soc_percent[i]) / h;
         let seg = self.segments[i];
@@ -326,7 +380,8 @@ impl MonotoneCurve {
         let (v_lo, v_hi) = (self.volts_min().0, self.volts_max().0);
         let last = (t.len() - 1) as f64;
         let x = ((v - v_lo) / (v_hi - v_lo) * last).clamp(0.0, last);
-        let i = (x.floor() as usize).min(t.len() - 2);
+        // x ≥ 0, so truncation is the floor, without a call to libm's.
+        let i = (x as usize).min(t.len() - 2);
         let f = x - i as f64;
         Some(t[i] + (t[i + 1] - t[i]) * f)
     }
@@ -335,7 +390,7 @@ impl MonotoneCurve {
     /// in the one segment that brackets it, safeguarded Newton steps from
     /// `guess` (else from the segment's chord).
     fn solve(&self, v: f64, guess: Option<f64>) -> f64 {
-        let j = segment_of(&self.volts_per_cell, v);
+        let j = self.volts_index.find(&self.volts_per_cell, v);
         let seg = self.segments[j];
         let (x0, x1) = (self.soc_percent[j], self.soc_percent[j + 1]);
         // The segment's Bézier rises with nt, so [0, 1] brackets the root.
@@ -420,6 +475,38 @@ mod tests {
                 "at {} %",
                 s.0
             );
+        }
+    }
+
+    #[test]
+    fn the_segment_index_finds_what_the_binary_search_finds() {
+        // Reference: the binary search it replaces, at every knot, at the
+        // doubles either side of each, across and beyond both axes, and on NaN,
+        // for an uneven curve and every bundled one.
+        let store = crate::profile::store::ProfileStore::builtin().unwrap();
+        let mut curves = vec![six_point_curve()];
+        curves.extend(store.iter().map(|p| p.curve().clone()));
+        for xs in curves
+            .iter()
+            .flat_map(|c| [&c.soc_percent, &c.volts_per_cell])
+        {
+            let index = SegmentIndex::new(xs);
+            let (lo, hi) = (xs[0], xs[xs.len() - 1]);
+            let mut probes = vec![f64::NAN, f64::NEG_INFINITY, f64::INFINITY];
+            for &k in xs.iter() {
+                probes.extend([
+                    k,
+                    // The neighbouring doubles (a zero knot has none of its size).
+                    k - (k.abs() * f64::EPSILON).max(f64::MIN_POSITIVE),
+                    k + (k.abs() * f64::EPSILON).max(f64::MIN_POSITIVE),
+                ]);
+            }
+            probes.extend(
+                (0..=20_000).map(|i| lo - 0.1 * (hi - lo) + 1.2 * (hi - lo) * i as f64 / 20_000.0),
+            );
+            for x in probes {
+                assert_eq!(index.find(xs, x), segment_of(xs, x), "at {x}");
+            }
         }
     }
 

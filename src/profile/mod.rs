@@ -91,6 +91,11 @@ pub struct Profile {
     /// it is looked up for every reading of a fleet, and the electrolyte model
     /// behind it inverts the Laliberté density each time.
     coefficient_table_mv_per_k: Vec<f64>,
+    /// The coefficient (mV/K) at the curve's lowest and highest state of
+    /// charge, as [`Profile::coefficient_and_slope`] gives it: whether a
+    /// reading lies on the curve at all is decided at the ends for every
+    /// reading, and there the curve's voltage is its end point's.
+    coefficient_at_ends_mv_per_k: (f64, f64),
 }
 
 /// A rest voltage referred to 25 °C by [`Profile::refer_to_25c`].
@@ -137,6 +142,7 @@ impl Profile {
             origin: origin.to_string(),
             curve,
             coefficient_table_mv_per_k: Vec::new(),
+            coefficient_at_ends_mv_per_k: (0.0, 0.0),
         };
         if !matches!(profile.spec.temperature.coefficient, CoefficientKind::Fixed)
             || profile.spec.temperature.ocv_mv_per_k_per_cell.is_none()
@@ -150,6 +156,10 @@ impl Profile {
                 })
                 .collect();
         }
+        profile.coefficient_at_ends_mv_per_k = (
+            profile.coefficient_and_slope(profile.curve.soc_min().0).0,
+            profile.coefficient_and_slope(profile.curve.soc_max().0).0,
+        );
         // A temperature coefficient must keep the curve increasing over the
         // field range, or the inverse would not be unique.
         for t in [-40.0, -20.0, 0.0, 45.0, 60.0] {
@@ -230,7 +240,8 @@ impl Profile {
         } else {
             soc.0.clamp(0.0, 100.0) / COEFFICIENT_STEP_PERCENT
         };
-        let i = (x.floor() as usize).min(table.len() - 2);
+        // x ≥ 0, so truncation is the floor, without a call to libm's.
+        let i = (x as usize).min(table.len() - 2);
         let f = x - i as f64;
         MillivoltsPerKelvin(table[i] + (table[i + 1] - table[i]) * f)
     }
@@ -288,10 +299,15 @@ impl Profile {
             let (k, k_slope) = self.coefficient_and_slope(s);
             (v25 + k * dt - v, slope + k_slope * dt)
         };
-        if v.is_nan() || g(s_lo).0 >= 0.0 {
+        // g at the ends without evaluating the curve: its Bézier gives the
+        // end points exactly there (nt = 0 and 1), so this is g(s_lo) and
+        // g(s_hi) to the bit (tested), for two lookups fewer per reading.
+        let (k_lo, k_hi) = self.coefficient_at_ends_mv_per_k;
+        let (v_lo, v_hi) = (self.curve.volts_min().0, self.curve.volts_max().0);
+        if v.is_nan() || v_lo + k_lo * dt - v >= 0.0 {
             return at_end(s_lo);
         }
-        if g(s_hi).0 <= 0.0 {
+        if v_hi + k_hi * dt - v <= 0.0 {
             return at_end(s_hi);
         }
         let raw = self.curve.guess_soc(v).unwrap_or(0.5 * (s_lo + s_hi));
@@ -321,7 +337,7 @@ impl Profile {
             return (self.ocv_coefficient_from_model(SocPercent(soc)).0, 0.0);
         }
         let x = soc.clamp(0.0, 100.0) / COEFFICIENT_STEP_PERCENT;
-        let i = (x.floor() as usize).min(table.len() - 2);
+        let i = (x as usize).min(table.len() - 2);
         let slope = (table[i + 1] - table[i]) / COEFFICIENT_STEP_PERCENT;
         (table[i] + (table[i + 1] - table[i]) * (x - i as f64), slope)
     }
@@ -734,6 +750,19 @@ mod tests {
                         }
                     }
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn the_ends_of_the_referral_equation_are_the_curves_end_points() {
+        // Derived: the segment Bézier is its end points at nt = 0 and 1, so the
+        // referral may take the end points for its evaluation there, bit for bit.
+        for p in ProfileStore::builtin().unwrap().iter() {
+            let c = p.curve();
+            for (s, v) in [(c.soc_min(), c.volts_min()), (c.soc_max(), c.volts_max())] {
+                let at = c.volts_and_slope(s).0;
+                assert_eq!(at.to_bits(), v.0.to_bits(), "{}", p.id());
             }
         }
     }
