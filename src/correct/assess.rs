@@ -480,8 +480,15 @@ fn core(
         Some(m) if m.0 < t.0 => m,
         _ => t,
     };
-    if let Ok(fp_low) = profile.freezing_point_at(SocPercent(interval[0])) {
-        let margin = rules.get(RuleId::FreezeMargin);
+    let margin = rules.get(RuleId::FreezeMargin);
+    // Warmer than any charge's freezing point and the margin: no look-up.
+    let may_freeze = profile
+        .warmest_freezing_point()
+        .map_or(true, |warmest| coldest.0 <= warmest.0 + margin);
+    let freezing = may_freeze
+        .then(|| profile.freezing_point_at(SocPercent(interval[0])).ok())
+        .flatten();
+    if let Some(fp_low) = freezing {
         if coldest.0 <= fp_low.0 + margin {
             flags.add(FlagCode::FreezeRisk, || format!(
                     "{:.0} °C expected; the electrolyte freezes near {:.0} °C at {:.0} % (margin {margin} °C)",
