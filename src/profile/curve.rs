@@ -234,8 +234,6 @@ fn walk_to_segment(xs: &[f64], x: f64, start: usize) -> usize {
 pub(crate) struct Guess {
     /// State of charge, %.
     pub soc: f64,
-    /// Its slope dSOC/dV of the table's interpolation, % per volt per cell.
-    pub slope: f64,
     /// A segment at or next to the one holding it (a hint for
     /// [`MonotoneCurve::segment_near`]).
     pub segment: usize,
@@ -509,22 +507,42 @@ impl MonotoneCurve {
     /// interpolation in the table made at construction (clamped to its
     /// ends); `None` while the table is being made.
     pub(crate) fn guess(&self, v: f64) -> Option<Guess> {
+        let (i, f) = self.table_position(v)?;
         let t = &self.inverse_table;
-        if t.len() < 2 {
+        let rise = t[i + 1] - t[i];
+        Some(Guess {
+            soc: t[i] + rise * f,
+            segment: self.inverse_segments[i],
+        })
+    }
+
+    /// Where `v` falls in the inverse table: the interval and the fraction
+    /// of the way through it (clamped to the table's ends); `None` while the
+    /// table is being made. A profile tabulates on the same grid
+    /// ([`MonotoneCurve::table_socs`]) to read its own values there.
+    pub(crate) fn table_position(&self, v: f64) -> Option<(usize, f64)> {
+        let n = self.inverse_table.len();
+        if n < 2 {
             return None;
         }
-        let last = (t.len() - 1) as f64;
+        let last = (n - 1) as f64;
         // A guess need not be the inverse to the bit, so the scale
         // multiplies where an exact map would divide.
         let x = ((v - self.volts_min().0) * self.inverse_scale).clamp(0.0, last);
-        // x ≥ 0, so truncation is the floor, without a call to libm's.
-        let i = (x as i64 as usize).min(t.len() - 2);
-        let rise = t[i + 1] - t[i];
-        Some(Guess {
-            soc: t[i] + rise * (x - i as f64),
-            slope: rise * self.inverse_scale,
-            segment: self.inverse_segments[i],
-        })
+        // x ≥ 0, so truncation is the floor, without a call to libm's; i64
+        // converts in one instruction where usize takes several.
+        let i = (x as i64).min(n as i64 - 2);
+        Some((i as usize, x - i as f64))
+    }
+
+    /// The states of charge of the inverse table's evenly spaced voltages.
+    pub(crate) fn table_socs(&self) -> &[f64] {
+        &self.inverse_table
+    }
+
+    /// The inverse table's intervals per volt.
+    pub(crate) fn table_scale(&self) -> f64 {
+        self.inverse_scale
     }
 
     /// The state of charge whose voltage is `v` (strictly inside the range):

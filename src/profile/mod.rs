@@ -102,6 +102,10 @@ pub struct Profile {
     coefficient_slope_max_mv_per_k_per_pct: f64,
     /// [`Profile::freezing_point_at`] 0 %, the highest over the charge range.
     warmest_freezing_point: Option<Celsius>,
+    /// The coefficient (mV/K) at the states of charge of the curve's inverse
+    /// table (empty for a fixed coefficient): the coefficient by 25 °C
+    /// voltage, from which the referral's first guess is read.
+    coefficient_by_volts_mv_per_k: Vec<f64>,
 }
 
 /// How close to its root the referral to 25 °C ends, in % of charge.
@@ -156,6 +160,7 @@ impl Profile {
             coefficient_at_ends_mv_per_k: (0.0, 0.0),
             coefficient_slope_max_mv_per_k_per_pct: 0.0,
             warmest_freezing_point: None,
+            coefficient_by_volts_mv_per_k: Vec::new(),
         };
         if !matches!(profile.spec.temperature.coefficient, CoefficientKind::Fixed)
             || profile.spec.temperature.ocv_mv_per_k_per_cell.is_none()
@@ -170,6 +175,14 @@ impl Profile {
                 .collect();
         }
         profile.warmest_freezing_point = profile.freezing_point_at(SocPercent(0.0)).ok();
+        if profile.coefficient_table_mv_per_k.len() >= 2 {
+            profile.coefficient_by_volts_mv_per_k = profile
+                .curve
+                .table_socs()
+                .iter()
+                .map(|&s| profile.ocv_coefficient(SocPercent(s)).0)
+                .collect();
+        }
         profile.coefficient_slope_max_mv_per_k_per_pct = profile
             .coefficient_table_mv_per_k
             .windows(2)
@@ -327,33 +340,34 @@ impl Profile {
         if v_hi + k_hi * dt - v <= 0.0 {
             return at_end(s_hi);
         }
-        // The first guess solves the same equation on the inverse table,
-        // s = S(v − k(s)·dt), by Newton steps from the table's answer at
-        // 25 °C: each costs a table look-up (S' is the table's slope), and two
-        // leave the one step on g below mostly enough (see `close`). With a
-        // fixed coefficient the first step is already the answer.
-        let mut s = self
-            .curve
-            .guess(v)
-            .map_or(0.5 * (s_lo + s_hi), |guess| guess.soc);
-        let mut hint = 0;
-        let steps = if self.coefficient_table_mv_per_k.len() < 2 {
-            1
-        } else {
-            2
-        };
-        for _ in 0..steps {
-            let (k, k_slope) = self.coefficient_and_slope(s);
-            let Some(w) = self.curve.guess(v - k * dt) else {
-                break;
-            };
-            let next = s - (s - w.soc) / (1.0 + w.slope * k_slope * dt);
-            if !next.is_finite() {
-                break;
+        // The first guess solves the same equation by 25 °C voltage w on the
+        // inverse table: w + K(w)·dt = v, with K the coefficient tabulated by
+        // voltage, by two Newton steps from w = v (each one look-up, for K and
+        // its slope), then s = S(w). That leaves the one Newton step on g
+        // below mostly enough (see `close`). A fixed coefficient gives w
+        // outright.
+        let (k_fixed, _) = self.coefficient_at_ends_mv_per_k;
+        let kt = &self.coefficient_by_volts_mv_per_k;
+        let mut w = v - k_fixed * dt;
+        if kt.len() >= 2 {
+            w = v;
+            for _ in 0..2 {
+                let Some((i, f)) = self.curve.table_position(w) else {
+                    break;
+                };
+                let rise = kt[i + 1] - kt[i];
+                let k_per_volt = rise * self.curve.table_scale();
+                w -= (w + (kt[i] + rise * f) * dt - v) / (1.0 + k_per_volt * dt);
             }
-            s = next.clamp(s_lo, s_hi);
-            hint = w.segment;
         }
+        let first = self.curve.guess(w);
+        let s = first.map_or(0.5 * (s_lo + s_hi), |guess| guess.soc);
+        let s = if s.is_finite() {
+            s.clamp(s_lo, s_hi)
+        } else {
+            0.5 * (s_lo + s_hi)
+        };
+        let hint = first.map_or(0, |guess| guess.segment);
         // g(s) = V25(s) + k(s)·dt − v rises with s (the load check keeps the
         // curve increasing at field temperatures). Each evaluation notes its
         // segment (the next one tries it first) and the stretch around s on
