@@ -126,6 +126,74 @@ impl FlagCode {
     }
 }
 
+/// The flag codes of an [`Estimate`], in the order raised, held inline: a
+/// fleet makes one for every reading, and a `Vec` cost it an allocation
+/// whenever a reading raised any flag. It reads as a slice of codes
+/// (`contains`, `iter`, `len`, indexing) and compares with a `Vec` of them.
+#[derive(Clone, Copy, PartialEq, Eq, Hash)]
+pub struct FlagCodes {
+    codes: [FlagCode; FlagCodes::CAPACITY],
+    len: u8,
+}
+
+impl FlagCodes {
+    /// More than there are codes: an assessment raises each code at most once.
+    const CAPACITY: usize = 16;
+
+    fn new() -> FlagCodes {
+        FlagCodes {
+            codes: [FlagCode::ShortRest; FlagCodes::CAPACITY],
+            len: 0,
+        }
+    }
+
+    fn push(&mut self, code: FlagCode) {
+        // Never full (see CAPACITY); were it, a repeated code is what would be lost.
+        if let Some(slot) = self.codes.get_mut(usize::from(self.len)) {
+            *slot = code;
+            self.len += 1;
+        }
+    }
+}
+
+impl Default for FlagCodes {
+    fn default() -> FlagCodes {
+        FlagCodes::new()
+    }
+}
+
+impl std::ops::Deref for FlagCodes {
+    type Target = [FlagCode];
+
+    fn deref(&self) -> &[FlagCode] {
+        &self.codes[..usize::from(self.len)]
+    }
+}
+
+impl std::fmt::Debug for FlagCodes {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_list().entries(self.iter()).finish()
+    }
+}
+
+impl PartialEq<Vec<FlagCode>> for FlagCodes {
+    fn eq(&self, other: &Vec<FlagCode>) -> bool {
+        **self == **other
+    }
+}
+
+impl PartialEq<FlagCodes> for Vec<FlagCode> {
+    fn eq(&self, other: &FlagCodes) -> bool {
+        **self == **other
+    }
+}
+
+impl From<FlagCodes> for Vec<FlagCode> {
+    fn from(codes: FlagCodes) -> Vec<FlagCode> {
+        codes.to_vec()
+    }
+}
+
 /// A flag with the evidence.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Flag {
@@ -141,7 +209,7 @@ pub struct Flag {
 /// instead of copying them out of a list of [`Flag`]s.
 struct Flags {
     /// The codes raised, without words.
-    codes: Vec<FlagCode>,
+    codes: FlagCodes,
     /// The flags raised, with words.
     list: Vec<Flag>,
     words: bool,
@@ -150,7 +218,7 @@ struct Flags {
 impl Flags {
     fn new(words: bool) -> Flags {
         Flags {
-            codes: Vec::new(),
+            codes: FlagCodes::new(),
             list: Vec::new(),
             words,
         }
@@ -362,6 +430,7 @@ pub enum CorrectError {
 /// Common cell counts tried when the stated count does not fit.
 const CANDIDATE_CELLS: [u32; 8] = [1, 2, 3, 4, 6, 12, 18, 24];
 
+#[inline(always)]
 fn core(
     profile: &Profile,
     reading: &Reading,
@@ -534,8 +603,8 @@ pub struct Estimate {
     pub soc_interval_percent: [f64; 2],
     /// What it was read from: "volts", "sg" or "volts+sg".
     pub soc_basis: &'static str,
-    /// Flags raised.
-    pub flags: Vec<FlagCode>,
+    /// Flags raised, in the order [`assess`] lists them.
+    pub flags: FlagCodes,
 }
 
 impl Estimate {
