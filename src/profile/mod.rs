@@ -106,6 +106,9 @@ pub struct Profile {
     /// table (empty for a fixed coefficient): the coefficient by 25 °C
     /// voltage, from which the referral's first guess is read.
     coefficient_by_volts_mv_per_k: Vec<f64>,
+    /// The preferred rest (h) when loaded and its log10, for the rest
+    /// allowance's semi-log form, which every reading evaluates.
+    preferred_rest_log10: (f64, f64),
 }
 
 /// How close to its root the referral to 25 °C ends, in % of charge.
@@ -161,6 +164,7 @@ impl Profile {
             coefficient_slope_max_mv_per_k_per_pct: 0.0,
             warmest_freezing_point: None,
             coefficient_by_volts_mv_per_k: Vec::new(),
+            preferred_rest_log10: (f64::NAN, f64::NAN),
         };
         if !matches!(profile.spec.temperature.coefficient, CoefficientKind::Fixed)
             || profile.spec.temperature.ocv_mv_per_k_per_cell.is_none()
@@ -174,6 +178,8 @@ impl Profile {
                 })
                 .collect();
         }
+        let preferred = profile.preferred_rest_hours();
+        profile.preferred_rest_log10 = (preferred, preferred.log10());
         profile.warmest_freezing_point = profile.freezing_point_at(SocPercent(0.0)).ok();
         if profile.coefficient_table_mv_per_k.len() >= 2 {
             profile.coefficient_by_volts_mv_per_k = profile
@@ -382,7 +388,11 @@ impl Profile {
             let (v25, slope) = self.curve.volts_and_slope_on(s, i);
             let (k, k_slope, (cell_lo, cell_hi)) = self.coefficient_slope_and_cell(s);
             let (seg_lo, seg_hi) = self.curve.segment_span(i);
-            piece.set((seg_lo.max(cell_lo), seg_hi.min(cell_hi)));
+            // Plain comparisons: none of these is NaN, and f64::max pays for NaN.
+            piece.set((
+                if seg_lo > cell_lo { seg_lo } else { cell_lo },
+                if seg_hi < cell_hi { seg_hi } else { cell_hi },
+            ));
             (v25 + k * dt - v, slope + k_slope * dt)
         };
         // On one piece g'' is the curve's (the coefficient is linear there),
@@ -420,6 +430,7 @@ impl Profile {
     /// [`Profile::coefficient_and_slope`], and the states of charge between
     /// which the coefficient is that one straight line (everywhere for a
     /// fixed one).
+    #[inline]
     fn coefficient_slope_and_cell(&self, soc: f64) -> (f64, f64, (f64, f64)) {
         let table = &self.coefficient_table_mv_per_k;
         if table.len() < 2 {
@@ -466,6 +477,18 @@ impl Profile {
     /// Preferred rest.
     pub fn preferred_rest_hours(&self) -> f64 {
         self.spec.rest.preferred_hours.value
+    }
+
+    /// log10 of [`Profile::preferred_rest_hours`], kept from load (and
+    /// taken afresh should the spec have been changed since).
+    pub fn preferred_rest_log10(&self) -> f64 {
+        let (hours, log) = self.preferred_rest_log10;
+        let now = self.preferred_rest_hours();
+        if hours == now {
+            log
+        } else {
+            now.log10()
+        }
     }
 }
 
