@@ -1,7 +1,7 @@
 //! The corrector: one reading of one unit → an [`Assessment`].
 
 use super::rest::{assess_rest, After, RestAssessment, RestStatus};
-use super::uncertainty::{rectangular, Budget, Contribution};
+use super::uncertainty::{rectangular, root_sum_of_squares, Budget, Contribution, COVERAGE_FACTOR};
 use crate::electrolyte::{self, ElectrolyteError, HydrometerRule};
 use crate::profile::Profile;
 use crate::rules::{RuleId, Rules};
@@ -126,6 +126,74 @@ impl FlagCode {
     }
 }
 
+/// The flag codes of an [`Estimate`], in the order raised, held inline: a
+/// fleet makes one for every reading, and a `Vec` cost it an allocation
+/// whenever a reading raised any flag. It reads as a slice of codes
+/// (`contains`, `iter`, `len`, indexing) and compares with a `Vec` of them.
+#[derive(Clone, Copy, PartialEq, Eq, Hash)]
+pub struct FlagCodes {
+    codes: [FlagCode; FlagCodes::CAPACITY],
+    len: u8,
+}
+
+impl FlagCodes {
+    /// More than there are codes: an assessment raises each code at most once.
+    const CAPACITY: usize = 16;
+
+    fn new() -> FlagCodes {
+        FlagCodes {
+            codes: [FlagCode::ShortRest; FlagCodes::CAPACITY],
+            len: 0,
+        }
+    }
+
+    fn push(&mut self, code: FlagCode) {
+        // Never full (see CAPACITY); were it, a repeated code is what would be lost.
+        if let Some(slot) = self.codes.get_mut(usize::from(self.len)) {
+            *slot = code;
+            self.len += 1;
+        }
+    }
+}
+
+impl Default for FlagCodes {
+    fn default() -> FlagCodes {
+        FlagCodes::new()
+    }
+}
+
+impl std::ops::Deref for FlagCodes {
+    type Target = [FlagCode];
+
+    fn deref(&self) -> &[FlagCode] {
+        &self.codes[..usize::from(self.len)]
+    }
+}
+
+impl std::fmt::Debug for FlagCodes {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_list().entries(self.iter()).finish()
+    }
+}
+
+impl PartialEq<Vec<FlagCode>> for FlagCodes {
+    fn eq(&self, other: &Vec<FlagCode>) -> bool {
+        **self == **other
+    }
+}
+
+impl PartialEq<FlagCodes> for Vec<FlagCode> {
+    fn eq(&self, other: &FlagCodes) -> bool {
+        **self == **other
+    }
+}
+
+impl From<FlagCodes> for Vec<FlagCode> {
+    fn from(codes: FlagCodes) -> Vec<FlagCode> {
+        codes.to_vec()
+    }
+}
+
 /// A flag with the evidence.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Flag {
@@ -136,27 +204,42 @@ pub struct Flag {
 }
 
 /// Flags as an assessment raises them. When only the numbers are wanted
-/// (every reading of a fleet) the evidence text is not written at all.
+/// (every reading of a fleet) the evidence text is not written at all, and
+/// only the codes are kept, so that [`estimate`] hands them over as they are
+/// instead of copying them out of a list of [`Flag`]s.
 struct Flags {
+    /// The codes raised, without words.
+    codes: FlagCodes,
+    /// The flags raised, with words.
     list: Vec<Flag>,
     words: bool,
 }
 
 impl Flags {
+    fn new(words: bool) -> Flags {
+        Flags {
+            codes: FlagCodes::new(),
+            list: Vec::new(),
+            words,
+        }
+    }
+
     fn add(&mut self, code: FlagCode, detail: impl FnOnce() -> String) {
-        let detail = if self.words { detail() } else { String::new() };
-        self.list.push(Flag { code, detail });
+        if self.words {
+            self.list.push(Flag {
+                code,
+                detail: detail(),
+            });
+        } else {
+            self.codes.push(code);
+        }
     }
 
     fn has(&self, code: FlagCode) -> bool {
-        self.list.iter().any(|f| f.code == code)
-    }
-
-    fn words<F: FnOnce() -> String>(&self, text: F) -> String {
         if self.words {
-            text()
+            self.list.iter().any(|f| f.code == code)
         } else {
-            String::new()
+            self.codes.contains(&code)
         }
     }
 }
@@ -347,6 +430,7 @@ pub enum CorrectError {
 /// Common cell counts tried when the stated count does not fit.
 const CANDIDATE_CELLS: [u32; 8] = [1, 2, 3, 4, 6, 12, 18, 24];
 
+#[inline(always)]
 fn core(
     profile: &Profile,
     reading: &Reading,
@@ -364,10 +448,7 @@ fn core(
     if n == 0 {
         return Err(CorrectError::NoCells);
     }
-    let mut flags = Flags {
-        list: Vec::new(),
-        words,
-    };
+    let mut flags = Flags::new(words);
 
     let (t, u_t) = match reading.temperature {
         Some(t) if !t.is_finite() => return Err(CorrectError::NotFinite("temperature")),
@@ -468,8 +549,15 @@ fn core(
         Some(m) if m.0 < t.0 => m,
         _ => t,
     };
-    if let Ok(fp_low) = profile.freezing_point_at(SocPercent(interval[0])) {
-        let margin = rules.get(RuleId::FreezeMargin);
+    let margin = rules.get(RuleId::FreezeMargin);
+    // Warmer than any charge's freezing point and the margin: no look-up.
+    let may_freeze = profile
+        .warmest_freezing_point()
+        .map_or(true, |warmest| coldest.0 <= warmest.0 + margin);
+    let freezing = may_freeze
+        .then(|| profile.freezing_point_at(SocPercent(interval[0])).ok())
+        .flatten();
+    if let Some(fp_low) = freezing {
         if coldest.0 <= fp_low.0 + margin {
             flags.add(FlagCode::FreezeRisk, || format!(
                     "{:.0} °C expected; the electrolyte freezes near {:.0} °C at {:.0} % (margin {margin} °C)",
@@ -515,8 +603,8 @@ pub struct Estimate {
     pub soc_interval_percent: [f64; 2],
     /// What it was read from: "volts", "sg" or "volts+sg".
     pub soc_basis: &'static str,
-    /// Flags raised.
-    pub flags: Vec<FlagCode>,
+    /// Flags raised, in the order [`assess`] lists them.
+    pub flags: FlagCodes,
 }
 
 impl Estimate {
@@ -543,7 +631,7 @@ pub fn estimate(
         soc_percent: c.soc,
         soc_interval_percent: c.interval,
         soc_basis: c.basis,
-        flags: c.flags.list.into_iter().map(|f| f.code).collect(),
+        flags: c.flags.codes,
     })
 }
 
@@ -565,17 +653,11 @@ pub fn assess(
         basis,
         flags,
     } = core(profile, reading, setup, rules, true)?;
+    let frozen = flags.has(FlagCode::FreezeRisk);
+    let flags = flags.list;
     let mut reasons = Vec::new();
     let freezing = profile.freezing_point_at(SocPercent(soc)).ok();
-    decide(
-        profile,
-        soc,
-        interval,
-        &rest,
-        &flags.list,
-        rules,
-        &mut reasons,
-    );
+    decide(profile, soc, interval, &rest, &flags, rules, &mut reasons);
     reasons.sort_by_key(|r| r.action);
     let action = reasons
         .first()
@@ -586,7 +668,7 @@ pub fn assess(
     if !reading.sg.is_empty() {
         work.push(WorkKind::Hydrometer);
     }
-    if flags.has(FlagCode::FreezeRisk) {
+    if frozen {
         work.push(WorkKind::Frozen);
     }
     let cautions = cautions_for_work(&work);
@@ -602,13 +684,13 @@ pub fn assess(
         temperature_correction_mv: volts_part.as_ref().map(|v| v.correction_mv),
         temperature_celsius: t.0,
         rest,
-        flags: flags.list,
+        flags,
         action,
         reasons,
         freezing_point_celsius: freezing.map(|c| c.0),
         cautions,
         sg: sg_part,
-        budget: volts_part.map(|v| v.budget),
+        budget: volts_part.and_then(|v| v.budget),
     })
 }
 
@@ -635,7 +717,8 @@ struct VoltsPart {
     interval: [f64; 2],
     ocv25_per_cell: f64,
     correction_mv: f64,
-    budget: Budget,
+    /// Written out only when words are wanted.
+    budget: Option<Budget>,
 }
 
 /// Per-cell OCV at 25 °C from a unit reading of `cells` cells, with the
@@ -666,47 +749,6 @@ fn volts_path(
 
     // GUM budget on the per-cell OCV at 25 °C.
     let meter_half = setup.meter.half_width(v, setup.resolution).0 / nf;
-    let mut contributions = vec![
-        Contribution {
-            input: "meter accuracy",
-            standard_uncertainty_mv_per_cell: rectangular(meter_half) * 1000.0,
-            basis: flags.words(|| format!("{} rectangular, /{} cells", setup.meter, n)),
-        },
-        Contribution {
-            input: "display resolution",
-            standard_uncertainty_mv_per_cell: rectangular(setup.resolution.0 / 2.0) / nf * 1000.0,
-            basis: flags.words(|| format!("±{} V / 2 rectangular", setup.resolution.0)),
-        },
-        Contribution {
-            input: "temperature",
-            standard_uncertainty_mv_per_cell: coef.abs() * u_t,
-            basis: flags.words(|| format!("{u_t} K × {coef:.3} mV/K")),
-        },
-        Contribution {
-            input: "temperature coefficient",
-            standard_uncertainty_mv_per_cell: rules.get(RuleId::CoefficientUncertainty)
-                * (t.0 - 25.0).abs(),
-            basis: flags.words(|| {
-                format!(
-                    "{} mV/K × |{:.1} − 25| K",
-                    rules.get(RuleId::CoefficientUncertainty),
-                    t.0
-                )
-            }),
-        },
-        Contribution {
-            input: "curve tolerance",
-            standard_uncertainty_mv_per_cell: rectangular(
-                profile.spec.tolerance.curve_mv_per_cell.value,
-            ),
-            basis: flags.words(|| {
-                format!(
-                    "±{} mV per cell rectangular",
-                    profile.spec.tolerance.curve_mv_per_cell.value
-                )
-            }),
-        },
-    ];
     // Unknown direction: the allowance is symmetric, so it enters the budget;
     // a known direction widens one side only (an uncorrected one-sided bias).
     let (below, above) = (
@@ -714,20 +756,64 @@ fn volts_path(
         rest.allowance_above_mv_per_cell,
     );
     let two_sided = below > 0.0 && above > 0.0;
-    if two_sided {
-        contributions.push(Contribution {
-            input: "rest allowance",
-            standard_uncertainty_mv_per_cell: rectangular(below.max(above)),
-            basis: flags.words(|| {
+    // The standard uncertainties, in the budget's order. They are combined
+    // here for both paths; the written budget (assess only) is built from the
+    // same values, so a fleet reading never pays for its Vec and Strings.
+    let u = [
+        rectangular(meter_half) * 1000.0,
+        rectangular(setup.resolution.0 / 2.0) / nf * 1000.0,
+        coef.abs() * u_t,
+        rules.get(RuleId::CoefficientUncertainty) * (t.0 - 25.0).abs(),
+        rectangular(profile.spec.tolerance.curve_mv_per_cell.value),
+        rectangular(below.max(above)),
+    ];
+    let u = &u[..if two_sided { 6 } else { 5 }];
+    let expanded_mv = COVERAGE_FACTOR * root_sum_of_squares(u.iter().copied());
+    let budget = flags.words.then(|| {
+        let mut contributions = Vec::with_capacity(u.len());
+        let mut add = |input, basis| {
+            contributions.push(Contribution {
+                input,
+                standard_uncertainty_mv_per_cell: u[contributions.len()],
+                basis,
+            })
+        };
+        add(
+            "meter accuracy",
+            format!("{} rectangular, /{} cells", setup.meter, n),
+        );
+        add(
+            "display resolution",
+            format!("±{} V / 2 rectangular", setup.resolution.0),
+        );
+        add("temperature", format!("{u_t} K × {coef:.3} mV/K"));
+        add(
+            "temperature coefficient",
+            format!(
+                "{} mV/K × |{:.1} − 25| K",
+                rules.get(RuleId::CoefficientUncertainty),
+                t.0
+            ),
+        );
+        add(
+            "curve tolerance",
+            format!(
+                "±{} mV per cell rectangular",
+                profile.spec.tolerance.curve_mv_per_cell.value
+            ),
+        );
+        if two_sided {
+            add(
+                "rest allowance",
                 format!(
                     "±{:.0} mV per cell rectangular (direction unknown)",
                     below.max(above)
-                )
-            }),
-        });
-    }
-    let budget = Budget::new(contributions);
-    let u_exp = budget.expanded_mv_per_cell / 1000.0;
+                ),
+            );
+        }
+        Budget::new(contributions)
+    });
+    let u_exp = expanded_mv / 1000.0;
     let (extra_below, extra_above) = if two_sided {
         (0.0, 0.0)
     } else {
@@ -874,6 +960,12 @@ fn plausibility(
     }
 }
 
+/// Cells whose corrected SG the numbers-only path holds on the stack: a
+/// 48 V string of 2 V cells. Longer lists are rare and go to the heap.
+const STACK_CELLS: usize = 24;
+
+/// The hydrometer part. Without words (see [`Flags`]) the summary's per-cell
+/// values and low cells are left empty: only its numbers are read.
 #[allow(clippy::too_many_arguments)]
 fn sg_path(
     profile: &Profile,
@@ -894,23 +986,39 @@ fn sg_path(
             cells: n,
         });
     }
-    let mut per_cell = Vec::with_capacity(sg.len());
-    for s in sg {
-        let c = electrolyte::correct_to_25c(*s, t, setup.hydrometer_rule)?;
-        per_cell.push(c.value.0);
+    // A fleet reading's values stay on the stack; assess keeps them for its summary.
+    let mut stack = [0.0; STACK_CELLS];
+    let mut heap = Vec::new();
+    let per_cell: &mut [f64] = if !flags.words && sg.len() <= STACK_CELLS {
+        &mut stack[..sg.len()]
+    } else {
+        heap.resize(sg.len(), 0.0);
+        &mut heap
+    };
+    for (c, s) in per_cell.iter_mut().zip(sg) {
+        *c = electrolyte::correct_to_25c(*s, t, setup.hydrometer_rule)?
+            .value
+            .0;
     }
+    let per_cell: &[f64] = per_cell;
+    let cells = per_cell.len();
     let mean = per_cell.iter().sum::<f64>() / per_cell.len() as f64;
     let max = per_cell.iter().cloned().fold(f64::MIN, f64::max);
     let min = per_cell.iter().cloned().fold(f64::MAX, f64::min);
     let spread = if per_cell.len() > 1 { max - min } else { 0.0 };
     let below = rules.get(RuleId::SgCellBelowMean);
-    let low_cells: Vec<usize> = per_cell
-        .iter()
-        .enumerate()
-        .filter(|(_, s)| mean - **s > below + 1e-9)
-        .map(|(i, _)| i + 1)
-        .collect();
-    if !low_cells.is_empty() {
+    let is_low = |s: f64| mean - s > below + 1e-9;
+    let low_cells: Vec<usize> = if flags.words {
+        per_cell
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| is_low(**s))
+            .map(|(i, _)| i + 1)
+            .collect()
+    } else {
+        Vec::new()
+    };
+    if per_cell.iter().any(|s| is_low(*s)) {
         flags.add(FlagCode::LowCellSg, || {
             format!(
                 "cell {} more than {below:.3} below the mean {mean:.3} (corrected to 25 °C)",
@@ -933,11 +1041,12 @@ fn sg_path(
     // Standard uncertainty of the mean SG: reading uncertainty over √cells, and
     // the temperature uncertainty through the correction slope (about
     // 0.0006 per K, REFERENCES §2; the 1.67 °C rule gives 0.000 6).
-    let u_read = rules.get(RuleId::HydrometerUncertainty) / (per_cell.len() as f64).sqrt();
+    let u_read = rules.get(RuleId::HydrometerUncertainty) / (cells as f64).sqrt();
     let u_sg = (u_read.powi(2) + (0.0006 * u_t).powi(2)).sqrt();
     let u_soc = u_sg / (hi.0 - lo.0) * 100.0;
     Ok(SgSummary {
-        per_cell_25c: per_cell,
+        // Empty on the numbers-only path (see above); only assess shows them.
+        per_cell_25c: heap,
         mean_25c: mean,
         spread,
         low_cells,

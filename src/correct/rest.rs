@@ -82,17 +82,47 @@ const SHORTEST_REST_H: f64 = 5.0 / 60.0;
 
 /// The semi-log excess at a rest time, scaled to `at_1h` at one hour and zero at `preferred`.
 pub fn semi_log_excess(at_1h: Millivolts, rest: Hours, preferred: Hours) -> Millivolts {
-    if rest.0 >= preferred.0 || preferred.0 <= 1.0 {
-        // With a preferred rest of an hour or less the one-hour figure is the most there is.
+    RestShape::new(rest, preferred, preferred.0.log10()).excess(at_1h)
+}
+
+/// How much of the one-hour excess is left after a rest: shared by both
+/// directions of an unknown rest, so that its logarithms are taken once.
+/// [`RestShape::excess`] repeats [`semi_log_excess`]'s arithmetic exactly.
+#[derive(Clone, Copy)]
+enum RestShape {
+    /// Nothing left.
+    Settled,
+    /// `at_1h · (1 − t/T)`, with `1 − t/T` here.
+    Linear(f64),
+    /// `at_1h · log10(T/t) / log10(T)`, with the two logarithms here.
+    SemiLog(f64, f64),
+}
+
+impl RestShape {
+    /// The shape for `rest` with preferred rest `preferred`, whose log10 is
+    /// `log_preferred` (only used on the semi-log branch).
+    fn new(rest: Hours, preferred: Hours, log_preferred: f64) -> RestShape {
         let t = rest.0.max(SHORTEST_REST_H);
-        return if t >= preferred.0 {
-            Millivolts(0.0)
-        } else {
-            Millivolts(at_1h.0 * (1.0 - t / preferred.0))
-        };
+        if rest.0 >= preferred.0 || preferred.0 <= 1.0 {
+            // With a preferred rest of an hour or less the one-hour figure is the most there is.
+            return if t >= preferred.0 {
+                RestShape::Settled
+            } else {
+                RestShape::Linear(1.0 - t / preferred.0)
+            };
+        }
+        RestShape::SemiLog((preferred.0 / t).log10(), log_preferred)
     }
-    let t = rest.0.max(SHORTEST_REST_H);
-    Millivolts(at_1h.0 * (preferred.0 / t).log10() / (preferred.0).log10())
+
+    fn excess(self, at_1h: Millivolts) -> Millivolts {
+        match self {
+            RestShape::Settled => Millivolts(0.0),
+            RestShape::Linear(left) => Millivolts(at_1h.0 * left),
+            RestShape::SemiLog(log_ratio, log_preferred) => {
+                Millivolts(at_1h.0 * log_ratio / log_preferred)
+            }
+        }
+    }
 }
 
 /// Judge the rest and the allowance for a reading.
@@ -105,14 +135,15 @@ pub fn assess_rest(profile: &Profile, rest: Option<Hours>, after: After) -> Rest
     // Unknown rest is judged as if one hour had passed: enough to have walked
     // away from a charger, not enough to trust the reading.
     let effective = rest.unwrap_or(Hours(1.0));
+    let shape = || RestShape::new(effective, pref, profile.preferred_rest_log10());
     let (below, above) = match after {
         After::Idle | After::Float => (0.0, 0.0),
-        After::Charge => (semi_log_excess(charge_1h, effective, pref).0, 0.0),
-        After::Discharge => (0.0, semi_log_excess(recovery_1h, effective, pref).0),
-        After::Unknown => (
-            semi_log_excess(charge_1h, effective, pref).0,
-            semi_log_excess(recovery_1h, effective, pref).0,
-        ),
+        After::Charge => (shape().excess(charge_1h).0, 0.0),
+        After::Discharge => (0.0, shape().excess(recovery_1h).0),
+        After::Unknown => {
+            let shape = shape();
+            (shape.excess(charge_1h).0, shape.excess(recovery_1h).0)
+        }
     };
     let status = match (rest, after) {
         (_, After::Idle) => RestStatus::Settled,
@@ -150,5 +181,27 @@ mod tests {
         assert_relative_eq!(e(24f64.sqrt()), 25.0, epsilon = 1e-9);
         assert!(e(40.0 / 60.0) > 50.0);
         assert!(e(0.0).is_finite());
+    }
+
+    #[test]
+    fn the_allowances_are_the_semi_log_excess_of_each_direction() {
+        // Reference: semi_log_excess itself, per direction, to the bit; the
+        // assessment shares one evaluation of it between the two directions.
+        let store = crate::profile::store::ProfileStore::builtin().unwrap();
+        for p in store.iter() {
+            let pref = Hours(p.preferred_rest_hours());
+            let charge = Millivolts(p.spec.rest.surface_charge_mv_per_cell_at_1h.value);
+            let recovery = Millivolts(p.spec.rest.recovery_mv_per_cell_at_1h.value);
+            for i in 0..=400 {
+                let h = Hours(i as f64 * 0.125);
+                let r = assess_rest(p, Some(h), After::Unknown);
+                let below = semi_log_excess(charge, h, pref).0;
+                let above = semi_log_excess(recovery, h, pref).0;
+                assert_eq!(r.allowance_below_mv_per_cell.to_bits(), below.to_bits());
+                assert_eq!(r.allowance_above_mv_per_cell.to_bits(), above.to_bits());
+                let c = assess_rest(p, Some(h), After::Charge);
+                assert_eq!(c.allowance_below_mv_per_cell.to_bits(), below.to_bits());
+            }
+        }
     }
 }

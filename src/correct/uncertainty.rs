@@ -40,11 +40,11 @@ pub const COVERAGE_FACTOR: f64 = 2.0;
 impl Budget {
     /// Combine contributions by root sum of squares (uncorrelated inputs).
     pub fn new(contributions: Vec<Contribution>) -> Budget {
-        let combined = contributions
-            .iter()
-            .map(|c| c.standard_uncertainty_mv_per_cell.powi(2))
-            .sum::<f64>()
-            .sqrt();
+        let combined = root_sum_of_squares(
+            contributions
+                .iter()
+                .map(|c| c.standard_uncertainty_mv_per_cell),
+        );
         Budget {
             contributions,
             combined_mv_per_cell: combined,
@@ -52,6 +52,18 @@ impl Budget {
             expanded_mv_per_cell: COVERAGE_FACTOR * combined,
         }
     }
+}
+
+/// Combined standard uncertainty of uncorrelated inputs: the root sum of
+/// squares of their standard uncertainties, summed in the order given. The
+/// one place it is computed, so that a budget written out for `assess` and
+/// the numbers-only path of `estimate` agree to the last bit.
+pub fn root_sum_of_squares(standard_uncertainties: impl IntoIterator<Item = f64>) -> f64 {
+    standard_uncertainties
+        .into_iter()
+        .map(|u| u.powi(2))
+        .sum::<f64>()
+        .sqrt()
 }
 
 /// Standard uncertainty of a rectangular distribution of half-width `a`.

@@ -91,7 +91,28 @@ pub struct Profile {
     /// it is looked up for every reading of a fleet, and the electrolyte model
     /// behind it inverts the Laliberté density each time.
     coefficient_table_mv_per_k: Vec<f64>,
+    /// The coefficient (mV/K) at the curve's lowest and highest state of
+    /// charge, as [`Profile::coefficient_and_slope`] gives it: whether a
+    /// reading lies on the curve at all is decided at the ends for every
+    /// reading, and there the curve's voltage is its end point's.
+    coefficient_at_ends_mv_per_k: (f64, f64),
+    /// The greatest |dk/dSOC| of the tabulated coefficient, mV/K per %
+    /// (0 for a fixed one): with the curve's bounds it bounds the referral's
+    /// Newton error.
+    coefficient_slope_max_mv_per_k_per_pct: f64,
+    /// [`Profile::freezing_point_at`] 0 %, the highest over the charge range.
+    warmest_freezing_point: Option<Celsius>,
+    /// The coefficient (mV/K) at the states of charge of the curve's inverse
+    /// table (empty for a fixed coefficient): the coefficient by 25 °C
+    /// voltage, from which the referral's first guess is read.
+    coefficient_by_volts_mv_per_k: Vec<f64>,
+    /// The preferred rest (h) when loaded and its log10, for the rest
+    /// allowance's semi-log form, which every reading evaluates.
+    preferred_rest_log10: (f64, f64),
 }
+
+/// How close to its root the referral to 25 °C ends, in % of charge.
+const REFERRAL_TOLERANCE_PERCENT: f64 = 1e-10;
 
 /// A rest voltage referred to 25 °C by [`Profile::refer_to_25c`].
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -106,6 +127,8 @@ pub struct Referred {
 
 /// Spacing of the tabulated temperature coefficient, in percent of charge.
 const COEFFICIENT_STEP_PERCENT: f64 = 0.1;
+/// Its reciprocal, table steps per percent of charge.
+const COEFFICIENT_STEPS_PER_PERCENT: f64 = 10.0;
 
 /// Points at which a derived curve is sampled before interpolation.
 const DERIVED_STEP_PERCENT: f64 = 5.0;
@@ -137,6 +160,11 @@ impl Profile {
             origin: origin.to_string(),
             curve,
             coefficient_table_mv_per_k: Vec::new(),
+            coefficient_at_ends_mv_per_k: (0.0, 0.0),
+            coefficient_slope_max_mv_per_k_per_pct: 0.0,
+            warmest_freezing_point: None,
+            coefficient_by_volts_mv_per_k: Vec::new(),
+            preferred_rest_log10: (f64::NAN, f64::NAN),
         };
         if !matches!(profile.spec.temperature.coefficient, CoefficientKind::Fixed)
             || profile.spec.temperature.ocv_mv_per_k_per_cell.is_none()
@@ -150,6 +178,26 @@ impl Profile {
                 })
                 .collect();
         }
+        let preferred = profile.preferred_rest_hours();
+        profile.preferred_rest_log10 = (preferred, preferred.log10());
+        profile.warmest_freezing_point = profile.freezing_point_at(SocPercent(0.0)).ok();
+        if profile.coefficient_table_mv_per_k.len() >= 2 {
+            profile.coefficient_by_volts_mv_per_k = profile
+                .curve
+                .table_socs()
+                .iter()
+                .map(|&s| profile.ocv_coefficient(SocPercent(s)).0)
+                .collect();
+        }
+        profile.coefficient_slope_max_mv_per_k_per_pct = profile
+            .coefficient_table_mv_per_k
+            .windows(2)
+            .map(|w| ((w[1] - w[0]) / COEFFICIENT_STEP_PERCENT).abs())
+            .fold(0.0, f64::max);
+        profile.coefficient_at_ends_mv_per_k = (
+            profile.coefficient_and_slope(profile.curve.soc_min().0).0,
+            profile.coefficient_and_slope(profile.curve.soc_max().0).0,
+        );
         // A temperature coefficient must keep the curve increasing over the
         // field range, or the inverse would not be unique.
         for t in [-40.0, -20.0, 0.0, 45.0, 60.0] {
@@ -230,8 +278,12 @@ impl Profile {
         } else {
             soc.0.clamp(0.0, 100.0) / COEFFICIENT_STEP_PERCENT
         };
-        let i = (x.floor() as usize).min(table.len() - 2);
+        // x ≥ 0, so truncation is the floor, without a call to libm's; and
+        // through i64, whose conversions cost an instruction where usize's
+        // cost several (the numbers are the same).
+        let i = (x as i64).min(table.len() as i64 - 2);
         let f = x - i as f64;
+        let i = i as usize;
         MillivoltsPerKelvin(table[i] + (table[i + 1] - table[i]) * f)
     }
 
@@ -265,8 +317,11 @@ impl Profile {
     /// charge `s` whose open-circuit voltage at `t` is the reading, that is
     /// `V25(s) + k(s)·(t − 25 °C) = v` with `k` the coefficient at `s`, and
     /// then `v − k(s)·(t − 25 °C)`. Solved as one equation
-    /// (`curve::bracketed_newton`), to 1e-10 % of charge. Beyond the curve's ends the
-    /// state of charge clamps and the coefficient is the end's.
+    /// (`curve::bracketed_newton`), to 1e-10 % of charge: it stops when a
+    /// bound on Newton's error (from the curve's curvature and least slope)
+    /// says so, which from the first guess here is mostly after one step.
+    /// Beyond the curve's ends the state of charge clamps and the coefficient
+    /// is the end's.
     pub fn refer_to_25c(&self, volts_per_cell: Volts, t: Celsius) -> Referred {
         let v = volts_per_cell.0;
         let dt = (t.0 - 25.0) / 1000.0;
@@ -280,28 +335,80 @@ impl Profile {
                 coefficient,
             }
         };
-        // g(s) = V25(s) + k(s)·dt − v rises with s (the load check keeps the
-        // curve increasing at field temperatures); its sign at the ends says
-        // whether the reading lies on the curve at all.
-        let g = |s: f64| {
-            let (v25, slope) = self.curve.volts_and_slope(SocPercent(s));
-            let (k, k_slope) = self.coefficient_and_slope(s);
-            (v25 + k * dt - v, slope + k_slope * dt)
-        };
-        if v.is_nan() || g(s_lo).0 >= 0.0 {
+        // Whether the reading lies on the curve at all is the sign of g (see
+        // below) at the ends, taken without evaluating the curve: its Bézier
+        // gives the end points exactly there (nt = 0 and 1, tested).
+        let (k_lo, k_hi) = self.coefficient_at_ends_mv_per_k;
+        let (v_lo, v_hi) = (self.curve.volts_min().0, self.curve.volts_max().0);
+        if v.is_nan() || v_lo + k_lo * dt - v >= 0.0 {
             return at_end(s_lo);
         }
-        if g(s_hi).0 <= 0.0 {
+        if v_hi + k_hi * dt - v <= 0.0 {
             return at_end(s_hi);
         }
-        let raw = self.curve.guess_soc(v).unwrap_or(0.5 * (s_lo + s_hi));
-        let first_k = self.ocv_coefficient(SocPercent(raw)).0;
-        let s = self
-            .curve
-            .guess_soc(v - first_k * dt)
-            .unwrap_or(raw)
-            .clamp(s_lo, s_hi);
-        let s = curve::bracketed_newton(g, (s_lo, s_hi), s, 1e-10);
+        // The first guess solves the same equation by 25 °C voltage w on the
+        // inverse table: w + K(w)·dt = v, with K the coefficient tabulated by
+        // voltage, by two Newton steps from w = v (each one look-up, for K and
+        // its slope), then s = S(w). That leaves the one Newton step on g
+        // below mostly enough (see `close`). A fixed coefficient gives w
+        // outright.
+        let (k_fixed, _) = self.coefficient_at_ends_mv_per_k;
+        let kt = &self.coefficient_by_volts_mv_per_k;
+        let mut w = v - k_fixed * dt;
+        if kt.len() >= 2 {
+            w = v;
+            for _ in 0..2 {
+                let Some((i, f)) = self.curve.table_position(w) else {
+                    break;
+                };
+                let rise = kt[i + 1] - kt[i];
+                let k_per_volt = rise * self.curve.table_scale();
+                w -= (w + (kt[i] + rise * f) * dt - v) / (1.0 + k_per_volt * dt);
+            }
+        }
+        let first = self.curve.guess(w);
+        let s = first.map_or(0.5 * (s_lo + s_hi), |guess| guess.soc);
+        let s = if s.is_finite() {
+            s.clamp(s_lo, s_hi)
+        } else {
+            0.5 * (s_lo + s_hi)
+        };
+        let hint = first.map_or(0, |guess| guess.segment);
+        // g(s) = V25(s) + k(s)·dt − v rises with s (the load check keeps the
+        // curve increasing at field temperatures). Each evaluation notes its
+        // segment (the next one tries it first) and the stretch around s on
+        // which g is one smooth piece (one curve segment, one coefficient
+        // cell), which the Newton error bound below needs.
+        let segment = std::cell::Cell::new(hint);
+        let piece = std::cell::Cell::new((s_lo, s_lo));
+        let g = |s: f64| {
+            let s = s.clamp(s_lo, s_hi);
+            let i = self.curve.segment_near(s, segment.get());
+            segment.set(i);
+            let (v25, slope) = self.curve.volts_and_slope_on(s, i);
+            let (k, k_slope, (cell_lo, cell_hi)) = self.coefficient_slope_and_cell(s);
+            let (seg_lo, seg_hi) = self.curve.segment_span(i);
+            // Plain comparisons: none of these is NaN, and f64::max pays for NaN.
+            piece.set((
+                if seg_lo > cell_lo { seg_lo } else { cell_lo },
+                if seg_hi < cell_hi { seg_hi } else { cell_hi },
+            ));
+            (v25 + k * dt - v, slope + k_slope * dt)
+        };
+        // On one piece g'' is the curve's (the coefficient is linear there),
+        // and g' is at least the curve's least slope less the coefficient's
+        // steepest change times dt.
+        let (curvature, slope) = self.curve.curvature_and_slope_bounds();
+        let factor = curve::newton_error_factor(
+            curvature,
+            slope - self.coefficient_slope_max_mv_per_k_per_pct * dt.abs(),
+        );
+        let close = |x: f64, next: f64| {
+            let (lo, hi) = piece.get();
+            (lo..=hi).contains(&next)
+                && factor * (next - x) * (next - x) <= REFERRAL_TOLERANCE_PERCENT
+        };
+        let s = curve::bracketed_newton(g, (s_lo, s_hi), s, REFERRAL_TOLERANCE_PERCENT, close);
         let coefficient = self.ocv_coefficient(SocPercent(s));
         Referred {
             lookup: SocLookup {
@@ -316,19 +423,50 @@ impl Profile {
     /// The coefficient (mV/K) and its slope with charge (mV/K per %): the
     /// tabulated coefficient is piecewise linear, a fixed one flat.
     fn coefficient_and_slope(&self, soc: f64) -> (f64, f64) {
+        let (k, slope, _) = self.coefficient_slope_and_cell(soc);
+        (k, slope)
+    }
+
+    /// [`Profile::coefficient_and_slope`], and the states of charge between
+    /// which the coefficient is that one straight line (everywhere for a
+    /// fixed one).
+    #[inline]
+    fn coefficient_slope_and_cell(&self, soc: f64) -> (f64, f64, (f64, f64)) {
         let table = &self.coefficient_table_mv_per_k;
         if table.len() < 2 {
-            return (self.ocv_coefficient_from_model(SocPercent(soc)).0, 0.0);
+            let k = self.ocv_coefficient_from_model(SocPercent(soc)).0;
+            return (k, 0.0, (f64::NEG_INFINITY, f64::INFINITY));
         }
-        let x = soc.clamp(0.0, 100.0) / COEFFICIENT_STEP_PERCENT;
-        let i = (x.floor() as usize).min(table.len() - 2);
-        let slope = (table[i + 1] - table[i]) / COEFFICIENT_STEP_PERCENT;
-        (table[i] + (table[i + 1] - table[i]) * (x - i as f64), slope)
+        // A solver's view of the coefficient: multiplying by the steps per
+        // percent, where `ocv_coefficient` divides by the step, keeps a
+        // division off each Newton step's path; the two differ by rounding.
+        let x = soc.clamp(0.0, 100.0) * COEFFICIENT_STEPS_PER_PERCENT;
+        let i = (x as i64).min(table.len() as i64 - 2);
+        let (start, f) = (i as f64, x - i as f64);
+        let i = i as usize;
+        let rise = table[i + 1] - table[i];
+        let cell = (
+            start * COEFFICIENT_STEP_PERCENT,
+            (start + 1.0) * COEFFICIENT_STEP_PERCENT,
+        );
+        (
+            table[i] + rise * f,
+            rise * COEFFICIENT_STEPS_PER_PERCENT,
+            cell,
+        )
     }
 
     /// Freezing point of the electrolyte at a state of charge.
     pub fn freezing_point_at(&self, soc: SocPercent) -> Result<Celsius, ElectrolyteError> {
         electrolyte::freezing_point(self.sg_at(soc))
+    }
+
+    /// The highest freezing point at any state of charge, that of the
+    /// discharged electrolyte (the SG rises with charge, and the freezing
+    /// point falls with SG): kept from load, so that a warm reading can skip
+    /// the look-up. `None` if the model refused the discharged SG.
+    pub fn warmest_freezing_point(&self) -> Option<Celsius> {
+        self.warmest_freezing_point
     }
 
     /// Minimum rest before a reading is trusted.
@@ -339,6 +477,18 @@ impl Profile {
     /// Preferred rest.
     pub fn preferred_rest_hours(&self) -> f64 {
         self.spec.rest.preferred_hours.value
+    }
+
+    /// log10 of [`Profile::preferred_rest_hours`], kept from load (and
+    /// taken afresh should the spec have been changed since).
+    pub fn preferred_rest_log10(&self) -> f64 {
+        let (hours, log) = self.preferred_rest_log10;
+        let now = self.preferred_rest_hours();
+        if hours == now {
+            log
+        } else {
+            now.log10()
+        }
     }
 }
 
@@ -734,6 +884,57 @@ mod tests {
                         }
                     }
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn the_referral_ends_within_its_tolerance_of_a_bisection() {
+        // Derived: bisection of the forward model itself (the `splines`
+        // curve plus the coefficient, `ocv_per_cell_at`) over the field
+        // range −40…75 °C. The solver stops on a bound of Newton's error, so
+        // it must lie within 1e-10 % of charge, plus what the voltage's
+        // rounding (8 ulp) moves the reference by.
+        for p in ProfileStore::builtin().unwrap().iter() {
+            let c = p.curve();
+            let (s_lo, s_hi) = (c.soc_min().0, c.soc_max().0);
+            let (_, slope) = c.curvature_and_slope_bounds();
+            for t in (-40..=75).step_by(5).map(f64::from) {
+                let floor =
+                    slope - p.coefficient_slope_max_mv_per_k_per_pct * (t - 25.0).abs() / 1000.0;
+                let rounding = 8.0 * f64::EPSILON * c.volts_max().0 / floor;
+                for i in 1..2_000 {
+                    let soc = s_lo + (s_hi - s_lo) * i as f64 / 2_000.0;
+                    let v = p.ocv_per_cell_at(SocPercent(soc), Celsius(t)).0 + 1e-5;
+                    let r = p.refer_to_25c(Volts(v), Celsius(t));
+                    if r.lookup.beyond.is_some() {
+                        continue;
+                    }
+                    let want = curve::tests::bisect_to_the_last_bit(
+                        |s| p.ocv_per_cell_at(SocPercent(s), Celsius(t)).0 - v,
+                        (s_lo, s_hi),
+                    );
+                    let off = (r.lookup.soc.0 - want).abs();
+                    assert!(
+                        off <= REFERRAL_TOLERANCE_PERCENT + rounding,
+                        "{} at {t} °C, {v} V: {} % against {want} % ({off:e} off)",
+                        p.id(),
+                        r.lookup.soc.0
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn the_ends_of_the_referral_equation_are_the_curves_end_points() {
+        // Derived: the segment Bézier is its end points at nt = 0 and 1, so the
+        // referral may take the end points for its evaluation there, bit for bit.
+        for p in ProfileStore::builtin().unwrap().iter() {
+            let c = p.curve();
+            for (s, v) in [(c.soc_min(), c.volts_min()), (c.soc_max(), c.volts_max())] {
+                let at = c.volts_and_slope(s).0;
+                assert_eq!(at.to_bits(), v.0.to_bits(), "{}", p.id());
             }
         }
     }
