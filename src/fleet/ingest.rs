@@ -562,11 +562,13 @@ impl Interner {
     }
 }
 
-/// Validate a record as UTF-8 (one pass over its bytes); on failure, say
-/// which field and which byte, with a guess at the encoding.
-fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
-    if std::str::from_utf8(rec.as_slice()).is_ok() {
-        return Ok(());
+/// Validate a record as UTF-8 (one pass over its bytes) and return its text,
+/// every field end to end, so that the fields need no validation of their
+/// own; on failure, say which field and which byte, with a guess at the
+/// encoding.
+fn check_utf8<'r>(rec: &'r csv::ByteRecord, names: &[String]) -> Result<&'r str, String> {
+    if let Ok(text) = std::str::from_utf8(rec.as_slice()) {
+        return Ok(text);
     }
     for (i, f) in rec.iter().enumerate() {
         if let Err(e) = std::str::from_utf8(f) {
@@ -586,7 +588,8 @@ fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
             ));
         }
     }
-    Ok(())
+    // Unreachable: the fields are the record's bytes, so one of them failed.
+    Ok("")
 }
 
 /// Shorten a value for a message.
@@ -704,26 +707,40 @@ struct RowParser<'o> {
     strings: Interner,
 }
 
-fn field(rec: &csv::ByteRecord, i: Option<usize>) -> &str {
-    i.and_then(|i| rec.get(i))
-        .and_then(|b| std::str::from_utf8(b).ok())
-        .unwrap_or("")
-        .trim()
+/// A record's fields of the known columns, trimmed, indexed by [`Col`]
+/// (empty for a column the file does not have).
+type Fields<'r> = [&'r str; COLUMNS.len()];
+
+/// Whether `b` can neither be nor end white space at the end of a field.
+fn plain_end(b: u8) -> bool {
+    // The ASCII white space of `char::is_whitespace` is exactly these.
+    b.is_ascii() && !matches!(b, b'\t'..=b'\r' | b' ')
+}
+
+/// `str::trim`, without its decoding of characters when both ends are
+/// ASCII and not white space, as they are in nearly every field.
+fn trim(s: &str) -> &str {
+    match (s.as_bytes().first(), s.as_bytes().last()) {
+        (Some(&a), Some(&z)) if plain_end(a) && plain_end(z) => s,
+        _ => s.trim(),
+    }
 }
 
 impl RowParser<'_> {
-    fn get<'r>(&self, rec: &'r csv::ByteRecord, c: Col) -> &'r str {
-        field(rec, self.idx[c as usize])
+    /// The known columns' fields of `rec`, whose whole text is `text`:
+    /// sliced once, so the checks below neither re-validate nor re-trim.
+    fn fields<'r>(&self, rec: &csv::ByteRecord, text: &'r str) -> Fields<'r> {
+        let mut f = [""; COLUMNS.len()];
+        for (slot, i) in f.iter_mut().zip(self.idx) {
+            if let Some(i) = i {
+                *slot = rec.range(i).and_then(|r| text.get(r)).map_or("", trim);
+            }
+        }
+        f
     }
 
-    fn number(
-        &self,
-        rec: &csv::ByteRecord,
-        c: Col,
-        expected: &str,
-        problems: &mut String,
-    ) -> Option<f64> {
-        let raw = self.get(rec, c);
+    fn number(&self, f: &Fields<'_>, c: Col, expected: &str, problems: &mut String) -> Option<f64> {
+        let raw = f[c as usize];
         if raw.is_empty() {
             return None;
         }
@@ -736,8 +753,8 @@ impl RowParser<'_> {
         }
     }
 
-    fn celsius(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Celsius> {
-        let v = self.number(rec, c, "degrees Celsius", problems)?;
+    fn celsius(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<Celsius> {
+        let v = self.number(f, c, "degrees Celsius", problems)?;
         let (lo, hi) = TEMPERATURE_RANGE_C;
         if (lo..=hi).contains(&v) {
             return Some(Celsius(v));
@@ -759,8 +776,8 @@ impl RowParser<'_> {
         None
     }
 
-    fn whole(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<u32> {
-        let raw = self.get(rec, c);
+    fn whole(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<u32> {
+        let raw = f[c as usize];
         if raw.is_empty() {
             return None;
         }
@@ -777,8 +794,8 @@ impl RowParser<'_> {
         }
     }
 
-    fn ohms(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Milliohms> {
-        let v = self.number(rec, c, "milliohms", problems)?;
+    fn ohms(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<Milliohms> {
+        let v = self.number(f, c, "milliohms", problems)?;
         if v > 0.0 && v <= 100_000.0 {
             Some(Milliohms(v))
         } else {
@@ -793,9 +810,11 @@ impl RowParser<'_> {
         }
     }
 
+    /// Judge one record, whose whole text (validated) is `text`.
     fn parse(
         &mut self,
         rec: &csv::ByteRecord,
+        text: &str,
         line: u64,
         problems: &mut String,
     ) -> Option<FleetRow> {
@@ -826,20 +845,24 @@ impl RowParser<'_> {
             }
             return None;
         }
-        for (i, f) in rec.iter().enumerate() {
-            if f.len() > MAX_FIELD_BYTES {
-                let _ = write!(
-                    problems,
-                    "column `{}`: field is {} bytes, over the {} KiB limit for one field",
-                    self.names.get(i).map(String::as_str).unwrap_or("?"),
-                    f.len(),
-                    MAX_FIELD_BYTES / 1024
-                );
-                return None;
+        // No field can be over the limit when the whole record is not.
+        if text.len() > MAX_FIELD_BYTES {
+            for (i, f) in rec.iter().enumerate() {
+                if f.len() > MAX_FIELD_BYTES {
+                    let _ = write!(
+                        problems,
+                        "column `{}`: field is {} bytes, over the {} KiB limit for one field",
+                        self.names.get(i).map(String::as_str).unwrap_or("?"),
+                        f.len(),
+                        MAX_FIELD_BYTES / 1024
+                    );
+                    return None;
+                }
             }
         }
+        let f = &self.fields(rec, text);
 
-        let unit = self.get(rec, Col::UnitId);
+        let unit = f[Col::UnitId as usize];
         if unit.is_empty() {
             problem(
                 problems,
@@ -848,7 +871,7 @@ impl RowParser<'_> {
             );
         }
 
-        let raw_time = self.get(rec, Col::TakenAt);
+        let raw_time = f[Col::TakenAt as usize];
         let taken_at = match parse_timestamp(raw_time) {
             Some(t) => {
                 if let Some(now) = self.opts.now.filter(|now| t > *now) {
@@ -873,7 +896,7 @@ impl RowParser<'_> {
             }
         };
 
-        let raw_profile = self.get(rec, Col::Profile);
+        let raw_profile = f[Col::Profile as usize];
         let profile = if raw_profile.is_empty() {
             if self.default_profile.is_none() {
                 problem(
@@ -910,22 +933,26 @@ impl RowParser<'_> {
             }
         }
 
-        let volts = self.number(rec, Col::Volts, "volts", problems).and_then(|v| {
+        let volts = self.number(f, Col::Volts, "volts", problems).and_then(|v| {
             if v.abs() <= MAX_ABS_VOLTS {
                 Some(Volts(v))
             } else {
                 problem(
                     problems,
                     Col::Volts,
-                    format_args!("{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"),
+                    format_args!(
+                        "{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"
+                    ),
                 );
                 None
             }
         });
 
-        let raw_sg = self.get(rec, Col::Sg);
+        let raw_sg = f[Col::Sg as usize];
         let mut sg = Vec::new();
         if !raw_sg.is_empty() {
+            // Sized once: the row keeps it, so growth would cost a reallocation.
+            sg.reserve_exact(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count());
             let (lo, hi) = SG_RANGE;
             for (k, part) in raw_sg.split(';').enumerate() {
                 let part = part.trim();
@@ -945,7 +972,7 @@ impl RowParser<'_> {
                 }
             }
         }
-        if volts.is_none() && raw_sg.is_empty() && self.get(rec, Col::Volts).is_empty() {
+        if volts.is_none() && raw_sg.is_empty() && f[Col::Volts as usize].is_empty() {
             problem(
                 problems,
                 Col::Volts,
@@ -955,7 +982,7 @@ impl RowParser<'_> {
             );
         }
 
-        let cells = self.whole(rec, Col::Cells, problems).and_then(|n| {
+        let cells = self.whole(f, Col::Cells, problems).and_then(|n| {
             if (1..=400).contains(&n) {
                 Some(n)
             } else {
@@ -980,9 +1007,9 @@ impl RowParser<'_> {
             }
         }
 
-        let position = self.whole(rec, Col::Position, problems);
+        let position = self.whole(f, Col::Position, problems);
         let temperature = if self.idx[Col::TempF as usize].is_some() {
-            self.number(rec, Col::TempF, "degrees Fahrenheit", problems)
+            self.number(f, Col::TempF, "degrees Fahrenheit", problems)
                 .and_then(|f| {
                     let c = Celsius::from_fahrenheit(f);
                     let (lo, hi) = TEMPERATURE_RANGE_C;
@@ -1002,11 +1029,11 @@ impl RowParser<'_> {
                     }
                 })
         } else {
-            self.celsius(rec, Col::TempC, problems)
+            self.celsius(f, Col::TempC, problems)
         };
-        let ambient = self.celsius(rec, Col::Ambient, problems);
+        let ambient = self.celsius(f, Col::Ambient, problems);
 
-        let raw_rest = self.get(rec, Col::RestH);
+        let raw_rest = f[Col::RestH as usize];
         let rest = if raw_rest.is_empty() {
             None
         } else {
@@ -1038,7 +1065,7 @@ impl RowParser<'_> {
             }
         };
 
-        let raw_after = self.get(rec, Col::After);
+        let raw_after = f[Col::After as usize];
         let after = [
             ("charge", After::Charge),
             ("discharge", After::Discharge),
@@ -1062,10 +1089,10 @@ impl RowParser<'_> {
             After::Unknown
         });
 
-        let ohmic = self.ohms(rec, Col::Ohmic, problems);
-        let baseline_ohmic = self.ohms(rec, Col::Baseline, problems);
+        let ohmic = self.ohms(f, Col::Ohmic, problems);
+        let baseline_ohmic = self.ohms(f, Col::Baseline, problems);
         let float_current = self
-            .number(rec, Col::FloatCurrent, "amperes", problems)
+            .number(f, Col::FloatCurrent, "amperes", problems)
             .and_then(|a| {
                 if a.abs() <= 10_000.0 {
                     Some(Amperes(a))
@@ -1083,7 +1110,7 @@ impl RowParser<'_> {
         // this, the value is a typing error or in the wrong unit (mAh).
         const CAPACITY_AH: (f64, f64) = (0.5, 20_000.0);
         let capacity = self
-            .number(rec, Col::Capacity, "ampere-hours", problems)
+            .number(f, Col::Capacity, "ampere-hours", problems)
             .and_then(|c| {
                 let (lo, hi) = CAPACITY_AH;
                 if (lo..=hi).contains(&c) {
@@ -1105,10 +1132,10 @@ impl RowParser<'_> {
             return None;
         };
         let opt_name = |i: &mut Interner, s: &str| (!s.is_empty()).then(|| i.get(s));
-        let (raw_site, raw_string) = (self.get(rec, Col::Site), self.get(rec, Col::String));
+        let (raw_site, raw_string) = (f[Col::Site as usize], f[Col::String as usize]);
         let site = opt_name(&mut self.sites, raw_site);
         let string = opt_name(&mut self.strings, raw_string);
-        let note = self.get(rec, Col::Note);
+        let note = f[Col::Note as usize];
         Some(FleetRow {
             source: SourceRef {
                 file: self.file.clone(),
@@ -1138,7 +1165,12 @@ impl RowParser<'_> {
 
 fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteRecord) -> u64 {
     let end = rdr.position().byte();
-    let inner = memchr::memchr_iter(b'\n', rec.as_slice()).count() as u64;
+    // Nearly every record has no line end inside; finding none is cheaper
+    // than counting.
+    let inner = match memchr::memchr(b'\n', rec.as_slice()) {
+        None => 0,
+        Some(_) => memchr::memchr_iter(b'\n', rec.as_slice()).count() as u64,
+    };
     rdr.get_mut().record_line(end, inner)
 }
 
@@ -1486,22 +1518,23 @@ fn read_records<R: Read>(
             Err(e) => return Err(csv_error(name, e, rdr.get_ref(), line_offset)),
         }
         let line = record_line(rdr, &rec) + line_offset;
-        if rec
-            .iter()
-            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
-        {
+        // The fields end to end are all white space just when each one is.
+        if rec.as_slice().iter().all(|b| b.is_ascii_whitespace()) {
             counts.blank += 1;
             continue;
         }
         counts.read += 1;
-        if let Err(what) = check_utf8(&rec, &parser.names) {
-            return Err(IngestError::Encoding {
-                file: name.to_string(),
-                line,
-                what,
-            });
-        }
-        match parser.parse(&rec, line, &mut problems) {
+        let text = match check_utf8(&rec, &parser.names) {
+            Ok(text) => text,
+            Err(what) => {
+                return Err(IngestError::Encoding {
+                    file: name.to_string(),
+                    line,
+                    what,
+                })
+            }
+        };
+        match parser.parse(&rec, text, line, &mut problems) {
             Some(row) => {
                 counts.accepted += 1;
                 sink(row);
@@ -2089,6 +2122,28 @@ mod tests {
             "{}",
             rej[3]
         );
+    }
+
+    #[test]
+    fn the_quick_trim_is_str_trim() {
+        // The reference is the standard library's `str::trim` (Unicode
+        // White_Space): every ASCII character and some Unicode spaces and
+        // non-spaces at either end, alone and around a field.
+        let mut ends: Vec<String> = (0u8..=127).map(|b| char::from(b).to_string()).collect();
+        for c in [
+            '\u{85}', '\u{a0}', '\u{1680}', '\u{2003}', '\u{2028}', '\u{3000}', 'é', '°', '€',
+        ] {
+            ends.push(c.to_string());
+        }
+        ends.push(String::new());
+        for a in &ends {
+            for z in &ends {
+                for mid in ["", "12.41", " x ", "a b"] {
+                    let s = format!("{a}{mid}{z}");
+                    assert_eq!(trim(&s), s.trim(), "{s:?}");
+                }
+            }
+        }
     }
 
     #[test]
