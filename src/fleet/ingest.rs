@@ -608,9 +608,54 @@ fn problem(problems: &mut String, col: Col, args: fmt::Arguments<'_>) {
     let _ = write!(problems, "column `{}`: {}", col_name(col), args);
 }
 
-/// [`parse_decimal`] with an allocation-free fast path for plain numbers,
+/// The powers of ten that an `f64` holds exactly.
+const EXACT_POWERS_OF_TEN: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The value of a plain decimal, `[+-]digits[.digits]`, when its digits
+/// make an integer below 2^53 and it has at most 22 decimals; `None` for
+/// anything else. Both the integer and the power of ten are then exact in an
+/// `f64`, so one correctly rounded division gives the correctly rounded
+/// value, which is what `str::parse` gives (Clinger's fast path), at a
+/// fraction of the cost of the general algorithm.
+fn plain_decimal(raw: &str) -> Option<f64> {
+    let b = raw.as_bytes();
+    let (negative, digits) = match b.first()? {
+        b'-' => (true, &b[1..]),
+        b'+' => (false, &b[1..]),
+        _ => (false, b),
+    };
+    let (mut mantissa, mut count, mut decimals) = (0u64, 0usize, 0usize);
+    let mut point = false;
+    for &c in digits {
+        match c {
+            // Past 19 digits the integer could overflow: leave it to the
+            // general path.
+            b'0'..=b'9' if count < 19 => {
+                mantissa = mantissa * 10 + u64::from(c - b'0');
+                count += 1;
+                decimals += usize::from(point);
+            }
+            b'.' if !point && count > 0 => point = true,
+            _ => return None,
+        }
+    }
+    // `5.` (no decimals after the point) and an empty number go the general way.
+    if count == 0 || (point && decimals == 0) || mantissa > 1 << 53 {
+        return None;
+    }
+    let v = mantissa as f64 / EXACT_POWERS_OF_TEN.get(decimals)?;
+    Some(if negative { -v } else { v })
+}
+
+/// [`parse_decimal`] with allocation-free fast paths for plain numbers,
 /// which are nearly all of them.
 fn decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
+    if let Some(v) = plain_decimal(raw) {
+        return Ok(v);
+    }
     if !raw.is_empty()
         && raw
             .bytes()
@@ -2143,6 +2188,76 @@ mod tests {
                     assert_eq!(trim(&s), s.trim(), "{s:?}");
                 }
             }
+        }
+    }
+
+    #[test]
+    fn the_plain_decimal_path_gives_what_str_parse_gives() {
+        use rand::{Rng, SeedableRng};
+        // The reference is the standard library's correctly rounded
+        // `str::parse::<f64>`: wherever the fast path answers, it must give
+        // the same bits; the common field forms must take it.
+        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
+        let alphabet = b"0123456789.-+e, x";
+        let mut hits = 0;
+        for _ in 0..200_000 {
+            let len = rng.gen_range(0..24);
+            let s: String = (0..len)
+                .map(|_| {
+                    // Mostly digits, so that long plain numbers are common.
+                    if rng.gen_bool(0.8) {
+                        char::from(b'0' + rng.gen_range(0..10))
+                    } else {
+                        char::from(alphabet[rng.gen_range(0..alphabet.len())])
+                    }
+                })
+                .collect();
+            if let Some(v) = plain_decimal(&s) {
+                hits += 1;
+                let want: f64 = s.parse().unwrap();
+                assert_eq!(v.to_bits(), want.to_bits(), "{s:?}");
+            }
+        }
+        assert!(hits > 20_000, "only {hits} strings took the fast path");
+        for s in [
+            "12.41",
+            "-4.5",
+            "+1.265",
+            "0",
+            "-0",
+            "-0.0",
+            "007.50",
+            "0.1",
+            "0.3",
+            "2.056",
+            "9007199254740992",
+            "0.000000000000000001",
+            "123456789012345.6",
+        ] {
+            let v = plain_decimal(s).unwrap_or_else(|| panic!("{s} is plain"));
+            assert_eq!(v.to_bits(), s.parse::<f64>().unwrap().to_bits(), "{s}");
+        }
+        // Beyond the exact range, or not plain: the general path decides.
+        for s in [
+            "",
+            "-",
+            "+",
+            ".",
+            ".5",
+            "5.",
+            "1e3",
+            "1,5",
+            "1.2.3",
+            "--1",
+            "1-2",
+            " 1",
+            "inf",
+            "NaN",
+            "9007199254740993",
+            "12345678901234567890",
+            "0.00000000000000000000001",
+        ] {
+            assert_eq!(plain_decimal(s), None, "{s}");
         }
     }
 
