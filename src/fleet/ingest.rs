@@ -746,6 +746,9 @@ struct RowParser<'o> {
     opts: &'o IngestOptions,
     default_profile: Option<Arc<str>>,
     known: Option<HashSet<String>>,
+    /// The last profile found in `known`: the same name (the same shared
+    /// allocation, from the interner) needs no lookup again.
+    last_known: Option<Arc<str>>,
     units: Interner,
     profiles: Interner,
     sites: Interner,
@@ -956,8 +959,11 @@ impl RowParser<'_> {
         } else {
             Some(self.profiles.get(raw_profile))
         };
-        if let (Some(p), Some(known)) = (&profile, &self.known) {
-            if !known.contains(&**p) {
+        let seen = matches!((&profile, &self.last_known), (Some(p), Some(k)) if Arc::ptr_eq(p, k));
+        if let (Some(p), Some(known), false) = (&profile, &self.known, seen) {
+            if known.contains(&**p) {
+                self.last_known = Some(p.clone());
+            } else {
                 let near = known
                     .iter()
                     .map(|k| (strsim::damerau_levenshtein(p, k), k))
@@ -1534,6 +1540,7 @@ fn parse_header<'o>(
             .known_profiles
             .as_ref()
             .map(|k| k.iter().cloned().collect()),
+        last_known: None,
         units: Interner::default(),
         profiles: Interner::default(),
         sites: Interner::default(),
@@ -2258,6 +2265,34 @@ mod tests {
             "0.00000000000000000000001",
         ] {
             assert_eq!(plain_decimal(s), None, "{s}");
+        }
+    }
+
+    #[test]
+    fn a_known_profile_stays_known_and_an_unknown_one_is_named_every_time() {
+        // The last known profile is remembered; the one after it, and the
+        // same name again, must still be judged on their own.
+        let text = "unit_id,taken_at,volts,profile\n\
+            B1,2024-03-01 08:30,12.41,agm\n\
+            B2,2024-03-01 08:30,12.41,AGM\n\
+            B3,2024-03-01 08:30,12.41,agn\n\
+            B4,2024-03-01 08:30,12.41,agm\n\
+            B5,2024-03-01 08:30,12.41,agn\n\
+            B6,2024-03-01 08:30,12.41,gel\n";
+        let opts = IngestOptions {
+            known_profiles: Some(vec!["agm".into(), "gel".into()]),
+            ..IngestOptions::default()
+        };
+        let (rows, rej, _) = run_opts(text.as_bytes(), &opts).unwrap();
+        let units: Vec<&str> = rows.iter().map(|r| &*r.unit_id).collect();
+        assert_eq!(units, ["B1", "B2", "B4", "B6"]);
+        let lines: Vec<u64> = rej.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [4, 6]);
+        for r in &rej {
+            assert_eq!(
+                r.reason,
+                "column `profile`: unknown profile 'agn' (did you mean 'agm'?)"
+            );
         }
     }
 
