@@ -45,10 +45,10 @@
 //! UTF-8. Rows before the first undecodable line have already been delivered.
 //!
 //! # Memory
-//! One `csv::ByteRecord` is reused for every record; memory does not grow with
-//! the number of records. The record buffer grows to the longest record seen,
-//! and a physical line longer than [`MAX_LINE_BYTES`] stops the file with an
-//! error, so a file without line breaks cannot exhaust memory. Names that repeat
+//! One read buffer and one record buffer are reused for every record; memory
+//! does not grow with the number of records. The buffers grow to the longest
+//! record seen, and a physical line longer than [`MAX_LINE_BYTES`] stops the
+//! file with an error, so a file without line breaks cannot exhaust memory. Names that repeat
 //! (unit, profile, site, string) are shared through small per-file caches, which
 //! is why those fields are `Arc<str>`.
 
@@ -395,32 +395,10 @@ fn col_name(c: Col) -> &'static str {
     COLUMNS[c as usize].1
 }
 
-/// Sits between the input and the CSV reader. It fails a physical line
-/// longer than [`MAX_LINE_BYTES`], so that the reader's record buffer cannot
-/// grow without bound, and it remembers where the line ends are, because the
-/// CSV reader reports the line where it *started looking* for a record (before
-/// skipped blank lines and the `\n` of a CRLF), not the record's own line.
-struct LineGuard<R> {
-    inner: R,
-    /// Bytes since the last line end.
-    run: u64,
-    tripped: bool,
-    /// Bytes delivered so far.
-    offset: u64,
-    /// Offsets of `\n` bytes delivered but not yet behind a finished record:
-    /// at most the reader's read-ahead, so bounded.
-    pending: std::collections::VecDeque<u64>,
-    /// `\n` bytes behind finished records.
-    passed: u64,
-    /// The field delimiter, for [`Quoting`].
-    delimiter: u8,
-    /// Quoting state after the last byte delivered.
-    quoting: Quoting,
-    /// Whether the input has ended.
-    eof: bool,
-}
+/// Bytes asked of the input at a time (the buffer the csv crate's reader had).
+const READ_BYTES: usize = 64 * 1024;
 
-/// Quoting state of the CSV reader at a byte, as far as record ends go (the
+/// Quoting state of the CSV parser at a byte, as far as record ends go (the
 /// csv crate's rules: a quote opens a quoted field only at the start of a
 /// field, `""` inside one is a quote).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -447,88 +425,412 @@ impl Quoting {
             _ => Quoting::Unquoted,
         }
     }
+}
 
-    /// The state after `bytes`.
-    fn after(self, bytes: &[u8], delimiter: u8) -> Quoting {
-        let Some(&last) = bytes.last() else {
-            return self;
-        };
-        if self != Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
-            // No quote: only the last byte decides between the two outside states.
-            return Quoting::Unquoted.step(last, delimiter);
-        }
-        if self == Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
-            return Quoting::Quoted;
-        }
-        bytes.iter().fold(self, |q, &b| q.step(b, delimiter))
+/// Why reading stopped, and on which line of the reader's input.
+#[derive(Debug)]
+enum ReadError {
+    /// The input failed.
+    Io { line: u64, source: io::Error },
+    /// A physical line is longer than [`MAX_LINE_BYTES`].
+    TooLong { line: u64 },
+}
+
+/// A whole-input error from the record reader, for input `name` whose line 1
+/// is the reader's line `line_offset + 1`.
+fn read_error(name: &str, e: ReadError, line_offset: u64) -> IngestError {
+    match e {
+        ReadError::TooLong { line } => IngestError::LineTooLong {
+            file: name.to_string(),
+            line: line + line_offset,
+            limit: MAX_LINE_BYTES,
+        },
+        ReadError::Io { line, source } => IngestError::Io {
+            file: name.to_string(),
+            line: line + line_offset,
+            source,
+        },
     }
 }
 
-impl<R> LineGuard<R> {
+/// Where the current record's bytes are.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Held {
+    /// No record.
+    None,
+    /// In the read buffer as read, `start..end`, fields separated by the delimiter.
+    InPlace { start: usize, end: usize },
+    /// In `fields`, end to end, `..len`.
+    Joined { len: usize },
+}
+
+/// Reads CSV records with the csv crate's rules (its parser, csv_core, with
+/// the csv reader's defaults: `"` quotes, `""` escapes, `\r`, `\n` or `\r\n`
+/// ends a record, empty lines are skipped, a UTF-8 byte-order mark at the
+/// very start is dropped).
+///
+/// A record on one line without a quote, which is nearly every record of a
+/// readings file, is split at its delimiters where it lies in the read
+/// buffer: no copy, no per-byte state machine. Any other record (a quote
+/// anywhere in its line) is handed to csv_core from the same buffer, so
+/// quoting is exactly the csv crate's. The input is read in the same
+/// 64 KiB requests, at the same points, as the csv crate's reader made.
+///
+/// It fails a physical line longer than [`MAX_LINE_BYTES`], so that a record
+/// cannot grow without bound, and it counts line ends, so that each record's
+/// line is the line on which it starts.
+struct RecordReader<R> {
+    inner: R,
+    core: csv_core::Reader,
+    delimiter: u8,
+    /// Whether a record can be split in place: only with an ASCII delimiter
+    /// that is not a quote or line end, so that splitting a line at it is
+    /// what csv_core does, and valid UTF-8 in the line is valid UTF-8 in the
+    /// fields.
+    in_place: bool,
+    buf: Vec<u8>,
+    /// The unread bytes are `buf[pos..filled]`.
+    pos: usize,
+    filled: usize,
+    /// `buf[pos..scanned]` holds no line end (a long line is not searched
+    /// again after each read).
+    scanned: usize,
+    /// The input has ended (a read gave 0 bytes).
+    eof: bool,
+    /// No more records.
+    done: bool,
+    /// Whether the input has been read from at all.
+    started: bool,
+    /// `\n` bytes before `pos`.
+    lines_before: u64,
+    /// `\n` bytes read from the input.
+    lines_read: u64,
+    /// Bytes read since the last line end (`\n` or `\r`).
+    run: u64,
+    /// The current record when csv_core read it: its fields end to end, and
+    /// where each ends.
+    fields: Vec<u8>,
+    ends: Vec<usize>,
+    /// Where each field of the current record is in its bytes.
+    bounds: Vec<(usize, usize)>,
+    held: Held,
+}
+
+/// One record as read, borrowed from its [`RecordReader`].
+#[derive(Clone, Copy)]
+struct Record<'a> {
+    /// The line as read (fields separated by `delimiter`) or the fields end to end.
+    bytes: &'a [u8],
+    /// Where each field is in `bytes`.
+    bounds: &'a [(usize, usize)],
+    /// The delimiter when `bytes` is the line as read.
+    delimiter: Option<u8>,
+}
+
+impl<'a> Record<'a> {
+    /// The number of fields.
+    fn len(&self) -> usize {
+        self.bounds.len()
+    }
+
+    /// The fields' bytes.
+    fn iter(&self) -> impl Iterator<Item = &'a [u8]> + '_ {
+        let bytes = self.bytes;
+        self.bounds.iter().map(move |&(a, b)| &bytes[a..b])
+    }
+
+    /// Whether every field is empty or ASCII white space (what spreadsheets
+    /// export for an empty row).
+    fn is_blank(&self) -> bool {
+        // The delimiters between fields are not part of them.
+        self.bytes
+            .iter()
+            .all(|&b| b.is_ascii_whitespace() || Some(b) == self.delimiter)
+    }
+
+    /// The record as a `csv::ByteRecord` (its fields end to end).
+    fn to_byte_record(self) -> csv::ByteRecord {
+        let mut rec = csv::ByteRecord::new();
+        for f in self.iter() {
+            rec.push_field(f);
+        }
+        rec
+    }
+}
+
+/// The fields of `line` (no line end in it) split at `delimiter`, into
+/// `bounds`; `false` if the line has a quote, which only csv_core judges.
+fn split_line(line: &[u8], delimiter: u8, bounds: &mut Vec<(usize, usize)>) -> bool {
+    // Eight bytes at a time: one test for a quote and one for delimiters per
+    // word, instead of a search call per field.
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const LOW7: u64 = 0x7F7F_7F7F_7F7F_7F7F;
+    /// The top bit of every byte of `w` that is zero, and of no other: the
+    /// exact form (no carries between bytes), not the one with false hits.
+    fn zero_bytes(w: u64) -> u64 {
+        !(((w & LOW7).wrapping_add(LOW7)) | w | LOW7)
+    }
+    let (quotes, delimiters) = (ONES * u64::from(b'"'), ONES * u64::from(delimiter));
+    bounds.clear();
+    let mut from = 0;
+    let mut words = line.chunks_exact(8);
+    let mut base = 0;
+    for word in &mut words {
+        let w = u64::from_le_bytes(word.try_into().unwrap_or([0; 8]));
+        if zero_bytes(w ^ quotes) != 0 {
+            return false;
+        }
+        let mut hits = zero_bytes(w ^ delimiters);
+        while hits != 0 {
+            // Little-endian: the lowest set byte is the earliest.
+            let i = base + (hits.trailing_zeros() / 8) as usize;
+            bounds.push((from, i));
+            from = i + 1;
+            hits &= hits - 1;
+        }
+        base += 8;
+    }
+    for (k, &b) in words.remainder().iter().enumerate() {
+        if b == b'"' {
+            return false;
+        }
+        if b == delimiter {
+            bounds.push((from, base + k));
+            from = base + k + 1;
+        }
+    }
+    bounds.push((from, line.len()));
+    true
+}
+
+impl<R: Read> RecordReader<R> {
     fn new(inner: R, delimiter: u8) -> Self {
-        LineGuard {
+        let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
+        // csv_core drops a byte-order mark at the start of the first input it
+        // is given, which here need not be the start of the input; this
+        // reader drops it itself. A line end is what a record start skips
+        // anyway, so it leaves the parser as it was, but no longer "unread".
+        let _ = core.read_record(b"\n", &mut [0], &mut [0]);
+        RecordReader {
             inner,
-            run: 0,
-            tripped: false,
-            offset: 0,
-            pending: std::collections::VecDeque::new(),
-            passed: 0,
+            core,
             delimiter,
-            quoting: Quoting::FieldStart,
+            in_place: delimiter.is_ascii() && !matches!(delimiter, b'"' | b'\n' | b'\r'),
+            buf: Vec::new(),
+            pos: 0,
+            filled: 0,
+            scanned: 0,
             eof: false,
+            done: false,
+            started: false,
+            lines_before: 0,
+            lines_read: 0,
+            run: 0,
+            fields: Vec::new(),
+            ends: Vec::new(),
+            bounds: Vec::new(),
+            held: Held::None,
         }
     }
 
-    /// The 1-based line on which a record that ended at byte `end` (exclusive,
-    /// terminator consumed or not) started, given the `\n` bytes inside it.
-    fn record_line(&mut self, end: u64, inner_newlines: u64) -> u64 {
-        let mut own_terminator = false;
-        while let Some(&o) = self.pending.front() {
-            if o >= end {
-                break;
-            }
-            self.pending.pop_front();
-            self.passed += 1;
-            own_terminator = o + 1 == end;
-        }
-        // A quoted field left open at the end of the input ends its record
-        // with its own content, not a terminator.
-        if self.eof && end == self.offset && self.quoting == Quoting::Quoted {
-            own_terminator = false;
-        }
-        (1 + self.passed)
-            .saturating_sub(u64::from(own_terminator))
-            .saturating_sub(inner_newlines)
-            .max(1)
-    }
-
-    /// The line after the last line end delivered (where an overlong line starts).
+    /// The line after the last line end read (where an overlong line starts,
+    /// or where the input failed).
     fn current_line(&self) -> u64 {
-        1 + self.passed + self.pending.len() as u64
+        1 + self.lines_read
     }
-}
 
-impl<R: Read> Read for LineGuard<R> {
-    fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
-        let n = self.inner.read(out)?;
-        let chunk = &out[..n];
-        if n == 0 {
-            self.eof = !out.is_empty();
+    /// Read up to [`READ_BYTES`] more after the unread bytes, which move to
+    /// the front of the buffer first.
+    fn fill(&mut self) -> Result<(), ReadError> {
+        if self.pos > 0 {
+            self.buf.copy_within(self.pos..self.filled, 0);
+            self.filled -= self.pos;
+            self.scanned = self.scanned.max(self.pos) - self.pos;
+            self.pos = 0;
         }
-        self.quoting = self.quoting.after(chunk, self.delimiter);
-        for i in memchr::memchr_iter(b'\n', chunk) {
-            self.pending.push_back(self.offset + i as u64);
+        let end = self.filled + READ_BYTES;
+        if self.buf.len() < end {
+            self.buf.resize(end, 0);
         }
+        let n = match self.inner.read(&mut self.buf[self.filled..end]) {
+            Ok(n) => n,
+            Err(source) => {
+                return Err(ReadError::Io {
+                    line: self.current_line(),
+                    source,
+                })
+            }
+        };
+        let chunk = &self.buf[self.filled..self.filled + n];
+        self.eof = n == 0;
+        self.lines_read += memchr::memchr_iter(b'\n', chunk).count() as u64;
         match memchr::memrchr2(b'\n', b'\r', chunk) {
             Some(i) => self.run = (n - i - 1) as u64,
             None => self.run += n as u64,
         }
-        self.offset += n as u64;
+        self.filled += n;
         if self.run > MAX_LINE_BYTES {
-            self.tripped = true;
-            return Err(io::Error::new(io::ErrorKind::InvalidData, "line too long"));
+            return Err(ReadError::TooLong {
+                line: self.current_line(),
+            });
         }
-        Ok(n)
+        if !self.started {
+            self.started = true;
+            // As csv_core does: a byte-order mark in the first bytes read.
+            if self.buf[self.pos..self.filled].starts_with(b"\xEF\xBB\xBF") {
+                self.pos += 3;
+                self.scanned = self.pos;
+                // csv_core takes nothing after it in that read for the end
+                // of the input.
+                self.done = self.pos == self.filled;
+            }
+        }
+        Ok(())
+    }
+
+    /// Read the next record; `Ok(None)` at the end of the input. On success
+    /// the record is [`RecordReader::record`], and the number is the line
+    /// (1-based, of this reader's input) on which it starts.
+    fn advance(&mut self) -> Result<Option<u64>, ReadError> {
+        self.held = Held::None;
+        if !self.started {
+            self.fill()?;
+        }
+        if self.done {
+            return Ok(None);
+        }
+        // Line ends before a record are skipped, as csv_core skips them.
+        loop {
+            while let Some(&b) = self.buf[..self.filled].get(self.pos) {
+                if b == b'\n' {
+                    self.lines_before += 1;
+                } else if b != b'\r' {
+                    break;
+                }
+                self.pos += 1;
+            }
+            if self.pos < self.filled {
+                break;
+            }
+            if self.eof {
+                self.done = true;
+                return Ok(None);
+            }
+            self.fill()?;
+        }
+        self.scanned = self.scanned.max(self.pos);
+        let line = 1 + self.lines_before;
+        if self.in_place && self.split_in_place()? {
+            return Ok(Some(line));
+        }
+        self.read_with_core()?;
+        Ok(if self.done { None } else { Some(line) })
+    }
+
+    /// The record at `pos`, when its line has no quote: split at the
+    /// delimiters where it is. `Ok(false)` leaves it to csv_core.
+    fn split_in_place(&mut self) -> Result<bool, ReadError> {
+        // The record ends at the first line end, or at the end of the input.
+        let end = loop {
+            if let Some(i) = memchr::memchr2(b'\n', b'\r', &self.buf[self.scanned..self.filled]) {
+                break self.scanned + i;
+            }
+            self.scanned = self.filled;
+            if self.eof {
+                break self.filled;
+            }
+            self.fill()?;
+        };
+        let start = self.pos;
+        if !split_line(&self.buf[start..end], self.delimiter, &mut self.bounds) {
+            return Ok(false);
+        }
+        self.held = Held::InPlace { start, end };
+        // The line end goes with the record; a `\n` after a `\r` is skipped
+        // before the next one.
+        if self.buf[..self.filled].get(end) == Some(&b'\n') {
+            self.lines_before += 1;
+        }
+        self.pos = (end + 1).min(self.filled);
+        self.scanned = self.pos;
+        Ok(true)
+    }
+
+    /// The record at `pos` through csv_core, reading more as it asks, as the
+    /// csv crate's reader does. Sets `done` when csv_core finds no record.
+    fn read_with_core(&mut self) -> Result<(), ReadError> {
+        use csv_core::ReadRecordResult as Res;
+        let (mut len, mut nends) = (0, 0);
+        loop {
+            if self.pos == self.filled && !self.eof {
+                self.fill()?;
+            }
+            if self.fields.len() <= len {
+                self.fields.resize((2 * self.fields.len()).max(256), 0);
+            }
+            if self.ends.len() <= nends {
+                self.ends.resize((2 * self.ends.len()).max(32), 0);
+            }
+            let input = &self.buf[self.pos..self.filled];
+            let (res, nin, nout, nend) =
+                self.core
+                    .read_record(input, &mut self.fields[len..], &mut self.ends[nends..]);
+            self.lines_before += memchr::memchr_iter(b'\n', &input[..nin]).count() as u64;
+            self.pos += nin;
+            len += nout;
+            nends += nend;
+            match res {
+                Res::InputEmpty | Res::OutputFull | Res::OutputEndsFull => {}
+                Res::Record => break,
+                Res::End => {
+                    self.done = true;
+                    return Ok(());
+                }
+            }
+        }
+        self.scanned = self.pos;
+        self.bounds.clear();
+        let mut from = 0;
+        for &e in &self.ends[..nends] {
+            self.bounds.push((from, e));
+            from = e;
+        }
+        self.held = Held::Joined { len };
+        Ok(())
+    }
+
+    /// The record read by the last [`RecordReader::advance`].
+    fn record(&self) -> Record<'_> {
+        let (bytes, delimiter) = match self.held {
+            Held::InPlace { start, end } => (&self.buf[start..end], Some(self.delimiter)),
+            Held::Joined { len } => (&self.fields[..len], None),
+            Held::None => (&[][..], None),
+        };
+        Record {
+            bytes,
+            bounds: &self.bounds,
+            delimiter,
+        }
+    }
+
+    /// Put a record split in place end to end, as csv_core gives it: a
+    /// multibyte character cut by a delimiter makes the line invalid UTF-8
+    /// while its fields end to end may be valid, and the checks are on the
+    /// latter.
+    fn join_fields(&mut self) {
+        let Held::InPlace { start, end } = self.held else {
+            return;
+        };
+        self.fields.clear();
+        for b in self.bounds.iter_mut() {
+            let from = self.fields.len();
+            self.fields
+                .extend_from_slice(&self.buf[start..end][b.0..b.1]);
+            *b = (from, self.fields.len());
+        }
+        self.held = Held::Joined {
+            len: self.fields.len(),
+        };
     }
 }
 
@@ -566,11 +868,15 @@ impl Interner {
 /// every field end to end, so that the fields need no validation of their
 /// own; on failure, say which field and which byte, with a guess at the
 /// encoding.
-fn check_utf8<'r>(rec: &'r csv::ByteRecord, names: &[String]) -> Result<&'r str, String> {
-    if let Ok(text) = std::str::from_utf8(rec.as_slice()) {
+fn check_utf8<'r>(
+    bytes: &'r [u8],
+    fields: impl Iterator<Item = &'r [u8]>,
+    names: &[String],
+) -> Result<&'r str, String> {
+    if let Ok(text) = std::str::from_utf8(bytes) {
         return Ok(text);
     }
-    for (i, f) in rec.iter().enumerate() {
+    for (i, f) in fields.enumerate() {
         if let Err(e) = std::str::from_utf8(f) {
             let at = e.valid_up_to();
             let byte = f.get(at).copied().unwrap_or(0);
@@ -777,11 +1083,11 @@ fn trim(s: &str) -> &str {
 impl RowParser<'_> {
     /// The known columns' fields of `rec`, whose whole text is `text`:
     /// sliced once, so the checks below neither re-validate nor re-trim.
-    fn fields<'r>(&self, rec: &csv::ByteRecord, text: &'r str) -> Fields<'r> {
+    fn fields<'r>(&self, rec: &Record<'_>, text: &'r str) -> Fields<'r> {
         let mut f = [""; COLUMNS.len()];
         for (slot, i) in f.iter_mut().zip(self.idx) {
-            if let Some(i) = i {
-                *slot = rec.range(i).and_then(|r| text.get(r)).map_or("", trim);
+            if let Some(&(a, b)) = i.and_then(|i| rec.bounds.get(i)) {
+                *slot = text.get(a..b).map_or("", trim);
             }
         }
         f
@@ -861,7 +1167,7 @@ impl RowParser<'_> {
     /// Judge one record, whose whole text (validated) is `text`.
     fn parse(
         &mut self,
-        rec: &csv::ByteRecord,
+        rec: &Record<'_>,
         text: &str,
         line: u64,
         problems: &mut String,
@@ -1214,17 +1520,6 @@ impl RowParser<'_> {
     }
 }
 
-fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteRecord) -> u64 {
-    let end = rdr.position().byte();
-    // Nearly every record has no line end inside; finding none is cheaper
-    // than counting.
-    let inner = match memchr::memchr(b'\n', rec.as_slice()) {
-        None => 0,
-        Some(_) => memchr::memchr_iter(b'\n', rec.as_slice()).count() as u64,
-    };
-    rdr.get_mut().record_line(end, inner)
-}
-
 /// The start of an input as read before any record: the bytes up to and
 /// including the first line end (or the first 64 KiB), with the encoding
 /// checked and the delimiter known.
@@ -1298,39 +1593,6 @@ fn read_prefix<R: Read>(
     })
 }
 
-fn csv_reader<R: Read>(input: R, delimiter: u8) -> csv::Reader<LineGuard<R>> {
-    csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(false)
-        .flexible(true)
-        .buffer_capacity(64 * 1024)
-        .from_reader(LineGuard::new(input, delimiter))
-}
-
-/// A whole-input error from the CSV reader, at the line it reached.
-fn csv_error<R>(name: &str, e: csv::Error, guard: &LineGuard<R>, line_offset: u64) -> IngestError {
-    let at = guard.current_line() + line_offset;
-    if guard.tripped {
-        return IngestError::LineTooLong {
-            file: name.to_string(),
-            line: at,
-            limit: MAX_LINE_BYTES,
-        };
-    }
-    match e.into_kind() {
-        csv::ErrorKind::Io(source) => IngestError::Io {
-            file: name.to_string(),
-            line: at,
-            source,
-        },
-        other => IngestError::Csv {
-            file: name.to_string(),
-            line: at,
-            message: format!("{:?}", other),
-        },
-    }
-}
-
 /// Read one input. Streaming: calls `sink` for every accepted record and
 /// `reject` for every rejected one; memory does not grow with the number of
 /// records. `name` labels the input in every message.
@@ -1347,18 +1609,27 @@ pub fn ingest<R: Read>(
     // The BOM is skipped before the guard so that its offsets are the CSV reader's.
     let mut head = io::Cursor::new(prefix.bytes);
     head.set_position(prefix.bom as u64);
-    let mut rdr = csv_reader(head.chain(reader), delimiter);
-    let mut rec = csv::ByteRecord::new();
-    let got = rdr
-        .read_byte_record(&mut rec)
-        .map_err(|e| csv_error(name, e, rdr.get_ref(), 0))?;
-    let header_line = record_line(&mut rdr, &rec);
+    let mut rdr = RecordReader::new(head.chain(reader), delimiter);
+    let (header_line, header) = read_header(name, &mut rdr)?;
     let (mut parser, mut stats) =
-        parse_header(name, got.then_some(&rec), header_line, delimiter, opts)?;
+        parse_header(name, header.as_ref(), header_line, delimiter, opts)?;
     let mut counts = RecordCounts::default();
     read_records(name, &mut rdr, &mut parser, 0, &mut counts, sink, reject)?;
     counts.finish(name, &mut stats);
     Ok(stats)
+}
+
+/// The first record (the header) and its line, or `None` for an input
+/// without records.
+fn read_header<R: Read>(
+    name: &str,
+    rdr: &mut RecordReader<R>,
+) -> Result<(u64, Option<csv::ByteRecord>), IngestError> {
+    match rdr.advance() {
+        Ok(Some(line)) => Ok((line, Some(rdr.record().to_byte_record()))),
+        Ok(None) => Ok((rdr.current_line(), None)),
+        Err(e) => Err(read_error(name, e, 0)),
+    }
 }
 
 /// Records read by [`read_records`], added up over the pieces of an input.
@@ -1421,7 +1692,7 @@ fn parse_header<'o>(
             })
         }
     };
-    check_utf8(rec, &[]).map_err(|what| IngestError::Encoding {
+    check_utf8(rec.as_slice(), rec.iter(), &[]).map_err(|what| IngestError::Encoding {
         file: name.to_string(),
         line: header_line,
         what,
@@ -1554,39 +1825,44 @@ fn parse_header<'o>(
 /// input's line `line_offset + 1`.
 fn read_records<R: Read>(
     name: &str,
-    rdr: &mut csv::Reader<LineGuard<R>>,
+    rdr: &mut RecordReader<R>,
     parser: &mut RowParser<'_>,
     line_offset: u64,
     counts: &mut RecordCounts,
     sink: &mut dyn FnMut(FleetRow),
     reject: &mut dyn FnMut(Rejected),
 ) -> Result<(), IngestError> {
-    let mut rec = csv::ByteRecord::new();
     let mut problems = String::new();
     loop {
-        match rdr.read_byte_record(&mut rec) {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => return Err(csv_error(name, e, rdr.get_ref(), line_offset)),
-        }
-        let line = record_line(rdr, &rec) + line_offset;
-        // The fields end to end are all white space just when each one is.
-        if rec.as_slice().iter().all(|b| b.is_ascii_whitespace()) {
+        let line = match rdr.advance() {
+            Ok(Some(line)) => line + line_offset,
+            Ok(None) => break,
+            Err(e) => return Err(read_error(name, e, line_offset)),
+        };
+        if rdr.record().is_blank() {
             counts.blank += 1;
             continue;
         }
         counts.read += 1;
-        let text = match check_utf8(&rec, &parser.names) {
+        let text = match std::str::from_utf8(rdr.record().bytes) {
             Ok(text) => text,
-            Err(what) => {
-                return Err(IngestError::Encoding {
-                    file: name.to_string(),
-                    line,
-                    what,
-                })
+            Err(_) => {
+                // The record's fields end to end are what must be UTF-8.
+                rdr.join_fields();
+                let rec = rdr.record();
+                match check_utf8(rec.bytes, rec.iter(), &parser.names) {
+                    Ok(text) => text,
+                    Err(what) => {
+                        return Err(IngestError::Encoding {
+                            file: name.to_string(),
+                            line,
+                            what,
+                        })
+                    }
+                }
             }
         };
-        match parser.parse(&rec, text, line, &mut problems) {
+        match parser.parse(&rdr.record(), text, line, &mut problems) {
             Some(row) => {
                 counts.accepted += 1;
                 sink(row);
@@ -1786,26 +2062,6 @@ mod tests {
             run("unit_id,taken_at,volts,profile\nA,2024-03-01 08:00,12.6,agm\nB,\":\n").unwrap();
         assert_eq!(rejects.len(), 1, "{rejects:?}");
         assert_eq!(rejects[0].line, 3, "{rejects:?}");
-    }
-
-    #[test]
-    fn the_quoting_state_skips_quote_free_bytes_correctly() {
-        // The shortcut for bytes without a quote must give what stepping
-        // through every byte gives, from every state and cut anywhere.
-        let text = b"a,\"b\"\"c\nd\",e\nf\"g,h\n\"i\n";
-        let states = [
-            Quoting::FieldStart,
-            Quoting::Unquoted,
-            Quoting::Quoted,
-            Quoting::QuoteInQuoted,
-        ];
-        for start in states {
-            let want = text.iter().fold(start, |q, &b| q.step(b, b','));
-            for cut in 0..=text.len() {
-                let got = start.after(&text[..cut], b',').after(&text[cut..], b',');
-                assert_eq!(got, want, "from {start:?}, cut at {cut}");
-            }
-        }
     }
 
     #[test]
@@ -2293,6 +2549,156 @@ mod tests {
                 r.reason,
                 "column `profile`: unknown profile 'agn' (did you mean 'agm'?)"
             );
+        }
+    }
+
+    #[test]
+    fn a_line_is_split_in_place_as_csv_core_splits_it() {
+        use rand::{Rng, SeedableRng};
+        // The reference is csv_core, the csv crate's parser: every line
+        // without a quote must give its fields; every line with one must be
+        // left to it.
+        let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+        let alphabet = b",;\tab\"x1 \xc3\xa9";
+        let mut bounds = Vec::new();
+        for _ in 0..50_000 {
+            let len = rng.gen_range(0..40);
+            let line: Vec<u8> = (0..len)
+                .map(|_| alphabet[rng.gen_range(0..alphabet.len())])
+                .collect();
+            for delimiter in [b',', b';', b'\t'] {
+                let split = split_line(&line, delimiter, &mut bounds);
+                assert_eq!(split, !line.contains(&b'"'), "{line:?}");
+                if !split || line.is_empty() {
+                    continue;
+                }
+                let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
+                let (mut out, mut ends) = ([0u8; 64], [0usize; 64]);
+                let (res, _, nout, nend) = core.read_record(&line, &mut out, &mut ends);
+                assert_eq!(res, csv_core::ReadRecordResult::InputEmpty);
+                let (res, _, _, last) = core.read_record(&[], &mut out[nout..], &mut ends[nend..]);
+                assert_eq!(res, csv_core::ReadRecordResult::Record);
+                let mut want = Vec::new();
+                let mut from = 0;
+                for &e in &ends[..nend + last] {
+                    want.push(out[from..e].to_vec());
+                    from = e;
+                }
+                let got: Vec<Vec<u8>> = bounds.iter().map(|&(a, b)| line[a..b].to_vec()).collect();
+                assert_eq!(got, want, "{line:?}");
+            }
+        }
+    }
+
+    /// Hands out its bytes in pieces of pseudo-random sizes, so that records
+    /// and line ends fall across reads.
+    struct Pieces<'a> {
+        data: &'a [u8],
+        rng: rand::rngs::StdRng,
+    }
+
+    impl Read for Pieces<'_> {
+        fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
+            use rand::Rng;
+            let most = out.len().min(self.data.len());
+            let n = if most == 0 {
+                0
+            } else {
+                self.rng.gen_range(1..=most.min(300))
+            };
+            out[..n].copy_from_slice(&self.data[..n]);
+            self.data = &self.data[n..];
+            Ok(n)
+        }
+    }
+
+    #[test]
+    fn the_record_reader_reads_what_the_csv_crate_reads() {
+        use rand::{Rng, SeedableRng};
+        // The reference is the csv crate's reader with the options this
+        // module used to give it: the same fields for every record, and the
+        // line is the one of the record's first byte, found from the csv
+        // reader's position (where it began, before skipped line ends).
+        let mut rng = rand::rngs::StdRng::seed_from_u64(3);
+        let pieces = [
+            &b"a"[..],
+            b"12.5",
+            b" ",
+            b"\"",
+            b",",
+            b";",
+            b"\t",
+            b"\r",
+            b"\n",
+            b"\r\n",
+            b"\xc3\xa9",
+            b"\xef\xbb\xbf",
+        ];
+        for round in 0..3000 {
+            let mut data = Vec::new();
+            for _ in 0..rng.gen_range(0..60) {
+                // Mostly plain text, so that most records are plain lines.
+                let i = if rng.gen_bool(0.7) {
+                    rng.gen_range(0..3)
+                } else {
+                    rng.gen_range(0..pieces.len())
+                };
+                data.extend_from_slice(pieces[i]);
+            }
+            if round % 100 == 0 {
+                // A line longer than a read, and a quoted field across reads.
+                data.extend(std::iter::repeat(b'x').take(70_000));
+                data.extend_from_slice(b",\"q\nq\"\n");
+            }
+            let delimiter = [b',', b';', b'\t'][round % 3];
+            let seed = rng.gen();
+            let mut want = csv::ReaderBuilder::new()
+                .delimiter(delimiter)
+                .has_headers(false)
+                .flexible(true)
+                .buffer_capacity(64 * 1024)
+                .from_reader(Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                });
+            let mut got = RecordReader::new(
+                Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                },
+                delimiter,
+            );
+            // The csv crate drops a byte-order mark when its first read
+            // (of 64 KiB asked) gives at least its 3 bytes.
+            let stripped = data.starts_with(b"\xef\xbb\xbf") && {
+                let mut first_read = Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                };
+                first_read.read(&mut vec![0; 64 * 1024]).unwrap() >= 3
+            };
+            let mut rec = csv::ByteRecord::new();
+            loop {
+                let start = want.position().byte() as usize;
+                let more = want.read_byte_record(&mut rec).unwrap();
+                let line = got.advance().unwrap();
+                assert_eq!(line.is_some(), more, "{data:?}");
+                let Some(line) = line else { break };
+                let fields: Vec<&[u8]> = got.record().iter().collect();
+                let expected: Vec<&[u8]> = rec.iter().collect();
+                assert_eq!(fields, expected, "{data:?}");
+                // Line ends skipped before the record, and a byte-order mark
+                // dropped at the very start, are not the record's.
+                let mut first = start;
+                if first == 0 && stripped {
+                    first = 3;
+                }
+                while matches!(data.get(first), Some(b'\r' | b'\n')) {
+                    first += 1;
+                }
+                let before = memchr::memchr_iter(b'\n', &data[..first]).count() as u64;
+                assert_eq!(line, 1 + before, "{data:?}");
+            }
         }
     }
 
