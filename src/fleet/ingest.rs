@@ -926,6 +926,7 @@ const EXACT_POWERS_OF_TEN: [f64; 23] = [
 /// `f64`, so one correctly rounded division gives the correctly rounded
 /// value, which is what `str::parse` gives (Clinger's fast path), at a
 /// fraction of the cost of the general algorithm.
+#[inline]
 fn plain_decimal(raw: &str) -> Option<f64> {
     let b = raw.as_bytes();
     let (negative, digits) = match b.first()? {
@@ -933,23 +934,34 @@ fn plain_decimal(raw: &str) -> Option<f64> {
         b'+' => (false, &b[1..]),
         _ => (false, b),
     };
-    let (mut mantissa, mut count, mut decimals) = (0u64, 0usize, 0usize);
-    let mut point = false;
-    for &c in digits {
-        match c {
-            // Past 19 digits the integer could overflow: leave it to the
-            // general path.
-            b'0'..=b'9' if count < 19 => {
-                mantissa = mantissa * 10 + u64::from(c - b'0');
-                count += 1;
-                decimals += usize::from(point);
-            }
-            b'.' if !point && count > 0 => point = true,
-            _ => return None,
+    // Wrapping: past 19 digits the integer is wrong, but then it is not used.
+    let mut mantissa = 0u64;
+    let mut i = 0;
+    let mut take_digits = |i: &mut usize| {
+        while let Some(d) = digits
+            .get(*i)
+            .map(|c| c.wrapping_sub(b'0'))
+            .filter(|d| *d <= 9)
+        {
+            mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+            *i += 1;
         }
+    };
+    take_digits(&mut i);
+    let whole_digits = i;
+    let mut decimals = 0;
+    if digits.get(i) == Some(&b'.') {
+        i += 1;
+        take_digits(&mut i);
+        decimals = i - whole_digits - 1;
     }
-    // `5.` (no decimals after the point) and an empty number go the general way.
-    if count == 0 || (point && decimals == 0) || mantissa > 1 << 53 {
+    // `5.`, `.5` and anything after the digits go the general way.
+    if i != digits.len()
+        || whole_digits == 0
+        || (decimals == 0 && i > whole_digits)
+        || whole_digits + decimals > 19
+        || mantissa > 1 << 53
+    {
         return None;
     }
     let v = mantissa as f64 / EXACT_POWERS_OF_TEN.get(decimals)?;
@@ -958,10 +970,19 @@ fn plain_decimal(raw: &str) -> Option<f64> {
 
 /// [`parse_decimal`] with allocation-free fast paths for plain numbers,
 /// which are nearly all of them.
+#[inline]
 fn decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
-    if let Some(v) = plain_decimal(raw) {
-        return Ok(v);
+    match plain_decimal(raw) {
+        Some(v) => Ok(v),
+        None => general_decimal(raw, expected),
     }
+}
+
+/// [`decimal`] for what is not a plain decimal: kept out of line, so that
+/// the fast path is small enough to inline.
+#[cold]
+#[inline(never)]
+fn general_decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
     if !raw.is_empty()
         && raw
             .bytes()
@@ -1046,6 +1067,9 @@ pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
 struct RowParser<'o> {
     file: Arc<str>,
     idx: [Option<usize>; COLUMNS.len()],
+    /// The columns the file has, as (column, field index): `idx` without
+    /// the absent ones, for the per-record loop.
+    present: Vec<(usize, usize)>,
     width: usize,
     names: Vec<String>,
     delimiter: u8,
@@ -1065,17 +1089,25 @@ struct RowParser<'o> {
 /// (empty for a column the file does not have).
 type Fields<'r> = [&'r str; COLUMNS.len()];
 
-/// Whether `b` can neither be nor end white space at the end of a field.
-fn plain_end(b: u8) -> bool {
-    // The ASCII white space of `char::is_whitespace` is exactly these.
-    b.is_ascii() && !matches!(b, b'\t'..=b'\r' | b' ')
-}
+/// Bytes that can neither be nor end white space at the end of a field:
+/// ASCII other than the ASCII white space of `char::is_whitespace` (a
+/// table, because the test runs on both ends of every field).
+const PLAIN_END: [bool; 256] = {
+    let mut t = [false; 256];
+    let mut b = 0;
+    while b < 128 {
+        t[b] = !matches!(b as u8, b'\t'..=b'\r' | b' ');
+        b += 1;
+    }
+    t
+};
 
 /// `str::trim`, without its decoding of characters when both ends are
 /// ASCII and not white space, as they are in nearly every field.
 fn trim(s: &str) -> &str {
     match (s.as_bytes().first(), s.as_bytes().last()) {
-        (Some(&a), Some(&z)) if plain_end(a) && plain_end(z) => s,
+        (Some(&a), Some(&z)) if PLAIN_END[usize::from(a)] && PLAIN_END[usize::from(z)] => s,
+        (None, _) => s,
         _ => s.trim(),
     }
 }
@@ -1085,8 +1117,8 @@ impl RowParser<'_> {
     /// sliced once, so the checks below neither re-validate nor re-trim.
     fn fields<'r>(&self, rec: &Record<'_>, text: &'r str) -> Fields<'r> {
         let mut f = [""; COLUMNS.len()];
-        for (slot, i) in f.iter_mut().zip(self.idx) {
-            if let Some(&(a, b)) = i.and_then(|i| rec.bounds.get(i)) {
+        for &(c, i) in &self.present {
+            if let (Some(slot), Some(&(a, b))) = (f.get_mut(c), rec.bounds.get(i)) {
                 *slot = text.get(a..b).map_or("", trim);
             }
         }
@@ -1164,14 +1196,18 @@ impl RowParser<'_> {
         }
     }
 
-    /// Judge one record, whose whole text (validated) is `text`.
+    /// Judge one record, whose whole text (validated) is `text`: hand the
+    /// row to `sink` and return `true`, or return `false` with the reasons
+    /// in `problems`. (The row is made in the call to `sink`, not returned,
+    /// which saves copying it, some 300 bytes, on its way.)
     fn parse(
         &mut self,
         rec: &Record<'_>,
         text: &str,
         line: u64,
         problems: &mut String,
-    ) -> Option<FleetRow> {
+        sink: &mut dyn FnMut(FleetRow),
+    ) -> bool {
         problems.clear();
         if rec.len() != self.width {
             let name = |i: usize| self.names.get(i).map(String::as_str).unwrap_or("?");
@@ -1197,7 +1233,7 @@ impl RowParser<'_> {
                     " (in a semicolon-delimited file an SG list separated by ';' must be quoted)",
                 );
             }
-            return None;
+            return false;
         }
         // No field can be over the limit when the whole record is not.
         if text.len() > MAX_FIELD_BYTES {
@@ -1210,7 +1246,7 @@ impl RowParser<'_> {
                         f.len(),
                         MAX_FIELD_BYTES / 1024
                     );
-                    return None;
+                    return false;
                 }
             }
         }
@@ -1306,13 +1342,15 @@ impl RowParser<'_> {
         });
 
         let raw_sg = f[Col::Sg as usize];
-        let mut sg = Vec::new();
+        // Sized once: the row keeps it, so growth would cost a reallocation.
+        let mut sg = match raw_sg {
+            "" => Vec::new(),
+            _ => Vec::with_capacity(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count()),
+        };
         if !raw_sg.is_empty() {
-            // Sized once: the row keeps it, so growth would cost a reallocation.
-            sg.reserve_exact(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count());
             let (lo, hi) = SG_RANGE;
             for (k, part) in raw_sg.split(';').enumerate() {
-                let part = part.trim();
+                let part = trim(part);
                 match decimal(part, "a specific gravity like 1.265") {
                     Ok(v) if (lo..=hi).contains(&v) => sg.push(SpecificGravity(v)),
                     Ok(v) if (lo * 1000.0..=hi * 1000.0).contains(&v) => problem(
@@ -1483,17 +1521,17 @@ impl RowParser<'_> {
             });
 
         if !problems.is_empty() {
-            return None;
+            return false;
         }
         let (Some(taken_at), Some(profile)) = (taken_at, profile) else {
-            return None;
+            return false;
         };
         let opt_name = |i: &mut Interner, s: &str| (!s.is_empty()).then(|| i.get(s));
         let (raw_site, raw_string) = (f[Col::Site as usize], f[Col::String as usize]);
         let site = opt_name(&mut self.sites, raw_site);
         let string = opt_name(&mut self.strings, raw_string);
         let note = f[Col::Note as usize];
-        Some(FleetRow {
+        sink(FleetRow {
             source: SourceRef {
                 file: self.file.clone(),
                 line,
@@ -1516,7 +1554,8 @@ impl RowParser<'_> {
             float_current,
             ambient,
             capacity,
-        })
+        });
+        true
     }
 }
 
@@ -1803,6 +1842,11 @@ fn parse_header<'o>(
         file: file.clone(),
         width: names.len(),
         names,
+        present: idx
+            .iter()
+            .enumerate()
+            .filter_map(|(c, i)| i.map(|i| (c, i)))
+            .collect(),
         idx,
         delimiter,
         opts,
@@ -1862,19 +1906,15 @@ fn read_records<R: Read>(
                 }
             }
         };
-        match parser.parse(&rdr.record(), text, line, &mut problems) {
-            Some(row) => {
-                counts.accepted += 1;
-                sink(row);
-            }
-            None => {
-                counts.rejected += 1;
-                reject(Rejected {
-                    file: name.to_string(),
-                    line,
-                    reason: std::mem::take(&mut problems),
-                });
-            }
+        if parser.parse(&rdr.record(), text, line, &mut problems, sink) {
+            counts.accepted += 1;
+        } else {
+            counts.rejected += 1;
+            reject(Rejected {
+                file: name.to_string(),
+                line,
+                reason: std::mem::take(&mut problems),
+            });
         }
     }
     Ok(())
