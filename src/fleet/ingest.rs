@@ -45,10 +45,10 @@
 //! UTF-8. Rows before the first undecodable line have already been delivered.
 //!
 //! # Memory
-//! One `csv::ByteRecord` is reused for every record; memory does not grow with
-//! the number of records. The record buffer grows to the longest record seen,
-//! and a physical line longer than [`MAX_LINE_BYTES`] stops the file with an
-//! error, so a file without line breaks cannot exhaust memory. Names that repeat
+//! One read buffer and one record buffer are reused for every record; memory
+//! does not grow with the number of records. The buffers grow to the longest
+//! record seen, and a physical line longer than [`MAX_LINE_BYTES`] stops the
+//! file with an error, so a file without line breaks cannot exhaust memory. Names that repeat
 //! (unit, profile, site, string) are shared through small per-file caches, which
 //! is why those fields are `Arc<str>`.
 
@@ -395,32 +395,10 @@ fn col_name(c: Col) -> &'static str {
     COLUMNS[c as usize].1
 }
 
-/// Sits between the input and the CSV reader. It fails a physical line
-/// longer than [`MAX_LINE_BYTES`], so that the reader's record buffer cannot
-/// grow without bound, and it remembers where the line ends are, because the
-/// CSV reader reports the line where it *started looking* for a record (before
-/// skipped blank lines and the `\n` of a CRLF), not the record's own line.
-struct LineGuard<R> {
-    inner: R,
-    /// Bytes since the last line end.
-    run: u64,
-    tripped: bool,
-    /// Bytes delivered so far.
-    offset: u64,
-    /// Offsets of `\n` bytes delivered but not yet behind a finished record:
-    /// at most the reader's read-ahead, so bounded.
-    pending: std::collections::VecDeque<u64>,
-    /// `\n` bytes behind finished records.
-    passed: u64,
-    /// The field delimiter, for [`Quoting`].
-    delimiter: u8,
-    /// Quoting state after the last byte delivered.
-    quoting: Quoting,
-    /// Whether the input has ended.
-    eof: bool,
-}
+/// Bytes asked of the input at a time (the buffer the csv crate's reader had).
+const READ_BYTES: usize = 64 * 1024;
 
-/// Quoting state of the CSV reader at a byte, as far as record ends go (the
+/// Quoting state of the CSV parser at a byte, as far as record ends go (the
 /// csv crate's rules: a quote opens a quoted field only at the start of a
 /// field, `""` inside one is a quote).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -447,88 +425,404 @@ impl Quoting {
             _ => Quoting::Unquoted,
         }
     }
+}
 
-    /// The state after `bytes`.
-    fn after(self, bytes: &[u8], delimiter: u8) -> Quoting {
-        let Some(&last) = bytes.last() else {
-            return self;
-        };
-        if self != Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
-            // No quote: only the last byte decides between the two outside states.
-            return Quoting::Unquoted.step(last, delimiter);
-        }
-        if self == Quoting::Quoted && memchr::memchr(b'"', bytes).is_none() {
-            return Quoting::Quoted;
-        }
-        bytes.iter().fold(self, |q, &b| q.step(b, delimiter))
+/// Why reading stopped, and on which line of the reader's input.
+#[derive(Debug)]
+enum ReadError {
+    /// The input failed.
+    Io { line: u64, source: io::Error },
+    /// A physical line is longer than [`MAX_LINE_BYTES`].
+    TooLong { line: u64 },
+}
+
+/// A whole-input error from the record reader, for input `name` whose line 1
+/// is the reader's line `line_offset + 1`.
+fn read_error(name: &str, e: ReadError, line_offset: u64) -> IngestError {
+    match e {
+        ReadError::TooLong { line } => IngestError::LineTooLong {
+            file: name.to_string(),
+            line: line + line_offset,
+            limit: MAX_LINE_BYTES,
+        },
+        ReadError::Io { line, source } => IngestError::Io {
+            file: name.to_string(),
+            line: line + line_offset,
+            source,
+        },
     }
 }
 
-impl<R> LineGuard<R> {
+/// Where the current record's bytes are.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Held {
+    /// No record.
+    None,
+    /// In the read buffer as read, `start..end`, fields separated by the delimiter.
+    InPlace { start: usize, end: usize },
+    /// In `fields`, end to end, `..len`.
+    Joined { len: usize },
+}
+
+/// Reads CSV records with the csv crate's rules (its parser, csv_core, with
+/// the csv reader's defaults: `"` quotes, `""` escapes, `\r`, `\n` or `\r\n`
+/// ends a record, empty lines are skipped, a UTF-8 byte-order mark at the
+/// very start is dropped).
+///
+/// A record on one line without a quote, which is nearly every record of a
+/// readings file, is split at its delimiters where it lies in the read
+/// buffer: no copy, no per-byte state machine. Any other record (a quote
+/// anywhere in its line) is handed to csv_core from the same buffer, so
+/// quoting is exactly the csv crate's. The input is read in the same
+/// 64 KiB requests, at the same points, as the csv crate's reader made.
+///
+/// It fails a physical line longer than [`MAX_LINE_BYTES`], so that a record
+/// cannot grow without bound, and it counts line ends, so that each record's
+/// line is the line on which it starts.
+struct RecordReader<R> {
+    inner: R,
+    core: csv_core::Reader,
+    delimiter: u8,
+    /// Whether a record can be split in place: only with an ASCII delimiter
+    /// that is not a quote or line end, so that splitting a line at it is
+    /// what csv_core does, and valid UTF-8 in the line is valid UTF-8 in the
+    /// fields.
+    in_place: bool,
+    buf: Vec<u8>,
+    /// The unread bytes are `buf[pos..filled]`.
+    pos: usize,
+    filled: usize,
+    /// `buf[pos..scanned]` holds no line end (a long line is not searched
+    /// again after each read).
+    scanned: usize,
+    /// The input has ended (a read gave 0 bytes).
+    eof: bool,
+    /// No more records.
+    done: bool,
+    /// Whether the input has been read from at all.
+    started: bool,
+    /// `\n` bytes before `pos`.
+    lines_before: u64,
+    /// `\n` bytes read from the input.
+    lines_read: u64,
+    /// Bytes read since the last line end (`\n` or `\r`).
+    run: u64,
+    /// The current record when csv_core read it: its fields end to end, and
+    /// where each ends.
+    fields: Vec<u8>,
+    ends: Vec<usize>,
+    /// Where each field of the current record is in its bytes.
+    bounds: Vec<(usize, usize)>,
+    held: Held,
+}
+
+/// One record as read, borrowed from its [`RecordReader`].
+#[derive(Clone, Copy)]
+struct Record<'a> {
+    /// The line as read (fields separated by `delimiter`) or the fields end to end.
+    bytes: &'a [u8],
+    /// Where each field is in `bytes`.
+    bounds: &'a [(usize, usize)],
+    /// The delimiter when `bytes` is the line as read.
+    delimiter: Option<u8>,
+}
+
+impl<'a> Record<'a> {
+    /// The number of fields.
+    fn len(&self) -> usize {
+        self.bounds.len()
+    }
+
+    /// The fields' bytes.
+    fn iter(&self) -> impl Iterator<Item = &'a [u8]> + '_ {
+        let bytes = self.bytes;
+        self.bounds.iter().map(move |&(a, b)| &bytes[a..b])
+    }
+
+    /// Whether every field is empty or ASCII white space (what spreadsheets
+    /// export for an empty row).
+    fn is_blank(&self) -> bool {
+        // The delimiters between fields are not part of them.
+        self.bytes
+            .iter()
+            .all(|&b| b.is_ascii_whitespace() || Some(b) == self.delimiter)
+    }
+
+    /// The record as a `csv::ByteRecord` (its fields end to end).
+    fn to_byte_record(self) -> csv::ByteRecord {
+        let mut rec = csv::ByteRecord::new();
+        for f in self.iter() {
+            rec.push_field(f);
+        }
+        rec
+    }
+}
+
+/// The fields of `line` (no line end and no quote in it) split at
+/// `delimiter`, into `bounds`.
+fn split_line(line: &[u8], delimiter: u8, bounds: &mut Vec<(usize, usize)>) {
+    // Eight bytes at a time, instead of a search call per field.
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const LOW7: u64 = 0x7F7F_7F7F_7F7F_7F7F;
+    let delimiters = ONES * u64::from(delimiter);
+    bounds.clear();
+    let mut from = 0;
+    let mut words = line.chunks_exact(8);
+    let mut base = 0;
+    for word in &mut words {
+        let w = u64::from_le_bytes(word.try_into().unwrap_or([0; 8])) ^ delimiters;
+        // The top bit of every byte of `w` that is zero (a delimiter), and of
+        // no other: the exact form, without carries between bytes.
+        let mut hits = !(((w & LOW7).wrapping_add(LOW7)) | w | LOW7);
+        while hits != 0 {
+            // Little-endian: the lowest set byte is the earliest.
+            let i = base + (hits.trailing_zeros() / 8) as usize;
+            bounds.push((from, i));
+            from = i + 1;
+            hits &= hits - 1;
+        }
+        base += 8;
+    }
+    for (k, &b) in words.remainder().iter().enumerate() {
+        if b == delimiter {
+            bounds.push((from, base + k));
+            from = base + k + 1;
+        }
+    }
+    bounds.push((from, line.len()));
+}
+
+impl<R: Read> RecordReader<R> {
     fn new(inner: R, delimiter: u8) -> Self {
-        LineGuard {
+        let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
+        // csv_core drops a byte-order mark at the start of the first input it
+        // is given, which here need not be the start of the input; this
+        // reader drops it itself. A line end is what a record start skips
+        // anyway, so it leaves the parser as it was, but no longer "unread".
+        let _ = core.read_record(b"\n", &mut [0], &mut [0]);
+        RecordReader {
             inner,
-            run: 0,
-            tripped: false,
-            offset: 0,
-            pending: std::collections::VecDeque::new(),
-            passed: 0,
+            core,
             delimiter,
-            quoting: Quoting::FieldStart,
+            in_place: delimiter.is_ascii() && !matches!(delimiter, b'"' | b'\n' | b'\r'),
+            buf: Vec::new(),
+            pos: 0,
+            filled: 0,
+            scanned: 0,
             eof: false,
+            done: false,
+            started: false,
+            lines_before: 0,
+            lines_read: 0,
+            run: 0,
+            fields: Vec::new(),
+            ends: Vec::new(),
+            bounds: Vec::new(),
+            held: Held::None,
         }
     }
 
-    /// The 1-based line on which a record that ended at byte `end` (exclusive,
-    /// terminator consumed or not) started, given the `\n` bytes inside it.
-    fn record_line(&mut self, end: u64, inner_newlines: u64) -> u64 {
-        let mut own_terminator = false;
-        while let Some(&o) = self.pending.front() {
-            if o >= end {
-                break;
-            }
-            self.pending.pop_front();
-            self.passed += 1;
-            own_terminator = o + 1 == end;
-        }
-        // A quoted field left open at the end of the input ends its record
-        // with its own content, not a terminator.
-        if self.eof && end == self.offset && self.quoting == Quoting::Quoted {
-            own_terminator = false;
-        }
-        (1 + self.passed)
-            .saturating_sub(u64::from(own_terminator))
-            .saturating_sub(inner_newlines)
-            .max(1)
-    }
-
-    /// The line after the last line end delivered (where an overlong line starts).
+    /// The line after the last line end read (where an overlong line starts,
+    /// or where the input failed).
     fn current_line(&self) -> u64 {
-        1 + self.passed + self.pending.len() as u64
+        1 + self.lines_read
     }
-}
 
-impl<R: Read> Read for LineGuard<R> {
-    fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
-        let n = self.inner.read(out)?;
-        let chunk = &out[..n];
-        if n == 0 {
-            self.eof = !out.is_empty();
+    /// Read up to [`READ_BYTES`] more after the unread bytes, which move to
+    /// the front of the buffer first.
+    fn fill(&mut self) -> Result<(), ReadError> {
+        if self.pos > 0 {
+            self.buf.copy_within(self.pos..self.filled, 0);
+            self.filled -= self.pos;
+            self.scanned = self.scanned.max(self.pos) - self.pos;
+            self.pos = 0;
         }
-        self.quoting = self.quoting.after(chunk, self.delimiter);
-        for i in memchr::memchr_iter(b'\n', chunk) {
-            self.pending.push_back(self.offset + i as u64);
+        let end = self.filled + READ_BYTES;
+        if self.buf.len() < end {
+            self.buf.resize(end, 0);
         }
+        let n = match self.inner.read(&mut self.buf[self.filled..end]) {
+            Ok(n) => n,
+            Err(source) => {
+                return Err(ReadError::Io {
+                    line: self.current_line(),
+                    source,
+                })
+            }
+        };
+        let chunk = &self.buf[self.filled..self.filled + n];
+        self.eof = n == 0;
+        self.lines_read += memchr::memchr_iter(b'\n', chunk).count() as u64;
         match memchr::memrchr2(b'\n', b'\r', chunk) {
             Some(i) => self.run = (n - i - 1) as u64,
             None => self.run += n as u64,
         }
-        self.offset += n as u64;
+        self.filled += n;
         if self.run > MAX_LINE_BYTES {
-            self.tripped = true;
-            return Err(io::Error::new(io::ErrorKind::InvalidData, "line too long"));
+            return Err(ReadError::TooLong {
+                line: self.current_line(),
+            });
         }
-        Ok(n)
+        if !self.started {
+            self.started = true;
+            // As csv_core does: a byte-order mark in the first bytes read.
+            if self.buf[self.pos..self.filled].starts_with(b"\xEF\xBB\xBF") {
+                self.pos += 3;
+                self.scanned = self.pos;
+                // csv_core takes nothing after it in that read for the end
+                // of the input.
+                self.done = self.pos == self.filled;
+            }
+        }
+        Ok(())
+    }
+
+    /// Read the next record; `Ok(None)` at the end of the input. On success
+    /// the record is [`RecordReader::record`], and the number is the line
+    /// (1-based, of this reader's input) on which it starts.
+    fn advance(&mut self) -> Result<Option<u64>, ReadError> {
+        self.held = Held::None;
+        if !self.started {
+            self.fill()?;
+        }
+        if self.done {
+            return Ok(None);
+        }
+        // Line ends before a record are skipped, as csv_core skips them.
+        loop {
+            while let Some(&b) = self.buf[..self.filled].get(self.pos) {
+                if b == b'\n' {
+                    self.lines_before += 1;
+                } else if b != b'\r' {
+                    break;
+                }
+                self.pos += 1;
+            }
+            if self.pos < self.filled {
+                break;
+            }
+            if self.eof {
+                self.done = true;
+                return Ok(None);
+            }
+            self.fill()?;
+        }
+        self.scanned = self.scanned.max(self.pos);
+        let line = 1 + self.lines_before;
+        if self.in_place && self.split_in_place()? {
+            return Ok(Some(line));
+        }
+        self.read_with_core()?;
+        Ok(if self.done { None } else { Some(line) })
+    }
+
+    /// The record at `pos`, when its line has no quote: split at the
+    /// delimiters where it is. `Ok(false)` leaves it to csv_core.
+    fn split_in_place(&mut self) -> Result<bool, ReadError> {
+        // The record ends at the first line end, or at the end of the input;
+        // a quote before that leaves it to csv_core. One search finds both.
+        let end = loop {
+            let rest = &self.buf[self.scanned..self.filled];
+            if let Some(i) = memchr::memchr3(b'\n', b'\r', b'"', rest) {
+                if rest[i] == b'"' {
+                    return Ok(false);
+                }
+                break self.scanned + i;
+            }
+            self.scanned = self.filled;
+            if self.eof {
+                break self.filled;
+            }
+            self.fill()?;
+        };
+        let start = self.pos;
+        split_line(&self.buf[start..end], self.delimiter, &mut self.bounds);
+        self.held = Held::InPlace { start, end };
+        // The line end goes with the record; a `\n` after a `\r` is skipped
+        // before the next one.
+        if self.buf[..self.filled].get(end) == Some(&b'\n') {
+            self.lines_before += 1;
+        }
+        self.pos = (end + 1).min(self.filled);
+        self.scanned = self.pos;
+        Ok(true)
+    }
+
+    /// The record at `pos` through csv_core, reading more as it asks, as the
+    /// csv crate's reader does. Sets `done` when csv_core finds no record.
+    fn read_with_core(&mut self) -> Result<(), ReadError> {
+        use csv_core::ReadRecordResult as Res;
+        let (mut len, mut nends) = (0, 0);
+        loop {
+            if self.pos == self.filled && !self.eof {
+                self.fill()?;
+            }
+            if self.fields.len() <= len {
+                self.fields.resize((2 * self.fields.len()).max(256), 0);
+            }
+            if self.ends.len() <= nends {
+                self.ends.resize((2 * self.ends.len()).max(32), 0);
+            }
+            let input = &self.buf[self.pos..self.filled];
+            let (res, nin, nout, nend) =
+                self.core
+                    .read_record(input, &mut self.fields[len..], &mut self.ends[nends..]);
+            self.lines_before += memchr::memchr_iter(b'\n', &input[..nin]).count() as u64;
+            self.pos += nin;
+            len += nout;
+            nends += nend;
+            match res {
+                Res::InputEmpty | Res::OutputFull | Res::OutputEndsFull => {}
+                Res::Record => break,
+                Res::End => {
+                    self.done = true;
+                    return Ok(());
+                }
+            }
+        }
+        self.scanned = self.pos;
+        self.bounds.clear();
+        let mut from = 0;
+        for &e in &self.ends[..nends] {
+            self.bounds.push((from, e));
+            from = e;
+        }
+        self.held = Held::Joined { len };
+        Ok(())
+    }
+
+    /// The record read by the last [`RecordReader::advance`].
+    fn record(&self) -> Record<'_> {
+        let (bytes, delimiter) = match self.held {
+            Held::InPlace { start, end } => (&self.buf[start..end], Some(self.delimiter)),
+            Held::Joined { len } => (&self.fields[..len], None),
+            Held::None => (&[][..], None),
+        };
+        Record {
+            bytes,
+            bounds: &self.bounds,
+            delimiter,
+        }
+    }
+
+    /// Put a record split in place end to end, as csv_core gives it: a
+    /// multibyte character cut by a delimiter makes the line invalid UTF-8
+    /// while its fields end to end may be valid, and the checks are on the
+    /// latter.
+    fn join_fields(&mut self) {
+        let Held::InPlace { start, end } = self.held else {
+            return;
+        };
+        self.fields.clear();
+        for b in self.bounds.iter_mut() {
+            let from = self.fields.len();
+            self.fields
+                .extend_from_slice(&self.buf[start..end][b.0..b.1]);
+            *b = (from, self.fields.len());
+        }
+        self.held = Held::Joined {
+            len: self.fields.len(),
+        };
     }
 }
 
@@ -562,13 +856,19 @@ impl Interner {
     }
 }
 
-/// Validate a record as UTF-8 (one pass over its bytes); on failure, say
-/// which field and which byte, with a guess at the encoding.
-fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
-    if std::str::from_utf8(rec.as_slice()).is_ok() {
-        return Ok(());
+/// Validate a record as UTF-8 (one pass over its bytes) and return its text,
+/// every field end to end, so that the fields need no validation of their
+/// own; on failure, say which field and which byte, with a guess at the
+/// encoding.
+fn check_utf8<'r>(
+    bytes: &'r [u8],
+    fields: impl Iterator<Item = &'r [u8]>,
+    names: &[String],
+) -> Result<&'r str, String> {
+    if let Ok(text) = std::str::from_utf8(bytes) {
+        return Ok(text);
     }
-    for (i, f) in rec.iter().enumerate() {
+    for (i, f) in fields.enumerate() {
         if let Err(e) = std::str::from_utf8(f) {
             let at = e.valid_up_to();
             let byte = f.get(at).copied().unwrap_or(0);
@@ -586,7 +886,8 @@ fn check_utf8(rec: &csv::ByteRecord, names: &[String]) -> Result<(), String> {
             ));
         }
     }
-    Ok(())
+    // Unreachable: the fields are the record's bytes, so one of them failed.
+    Ok("")
 }
 
 /// Shorten a value for a message.
@@ -605,9 +906,75 @@ fn problem(problems: &mut String, col: Col, args: fmt::Arguments<'_>) {
     let _ = write!(problems, "column `{}`: {}", col_name(col), args);
 }
 
-/// [`parse_decimal`] with an allocation-free fast path for plain numbers,
+/// The powers of ten that an `f64` holds exactly.
+const EXACT_POWERS_OF_TEN: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The value of a plain decimal, `[+-]digits[.digits]`, when its digits
+/// make an integer below 2^53 and it has at most 22 decimals; `None` for
+/// anything else. Both the integer and the power of ten are then exact in an
+/// `f64`, so one correctly rounded division gives the correctly rounded
+/// value, which is what `str::parse` gives (Clinger's fast path), at a
+/// fraction of the cost of the general algorithm.
+#[inline]
+fn plain_decimal(raw: &str) -> Option<f64> {
+    let b = raw.as_bytes();
+    let (negative, digits) = match b.first()? {
+        b'-' => (true, &b[1..]),
+        b'+' => (false, &b[1..]),
+        _ => (false, b),
+    };
+    // Wrapping: past 19 digits the integer is wrong, but then it is not used.
+    let mut mantissa = 0u64;
+    let mut i = 0;
+    let mut take_digits = |i: &mut usize| {
+        while let Some(d) = digits
+            .get(*i)
+            .map(|c| c.wrapping_sub(b'0'))
+            .filter(|d| *d <= 9)
+        {
+            mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+            *i += 1;
+        }
+    };
+    take_digits(&mut i);
+    let whole_digits = i;
+    let mut decimals = 0;
+    if digits.get(i) == Some(&b'.') {
+        i += 1;
+        take_digits(&mut i);
+        decimals = i - whole_digits - 1;
+    }
+    // `5.`, `.5` and anything after the digits go the general way.
+    if i != digits.len()
+        || whole_digits == 0
+        || (decimals == 0 && i > whole_digits)
+        || whole_digits + decimals > 19
+        || mantissa > 1 << 53
+    {
+        return None;
+    }
+    let v = mantissa as f64 / EXACT_POWERS_OF_TEN.get(decimals)?;
+    Some(if negative { -v } else { v })
+}
+
+/// [`parse_decimal`] with allocation-free fast paths for plain numbers,
 /// which are nearly all of them.
+#[inline]
 fn decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
+    match plain_decimal(raw) {
+        Some(v) => Ok(v),
+        None => general_decimal(raw, expected),
+    }
+}
+
+/// [`decimal`] for what is not a plain decimal: kept out of line, so that
+/// the fast path is small enough to inline.
+#[cold]
+#[inline(never)]
+fn general_decimal(raw: &str, expected: &str) -> Result<f64, crate::units::UnitError> {
     if !raw.is_empty()
         && raw
             .bytes()
@@ -692,38 +1059,66 @@ pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
 struct RowParser<'o> {
     file: Arc<str>,
     idx: [Option<usize>; COLUMNS.len()],
+    /// The columns the file has, as (column, field index): `idx` without
+    /// the absent ones, for the per-record loop.
+    present: Vec<(usize, usize)>,
     width: usize,
     names: Vec<String>,
     delimiter: u8,
     opts: &'o IngestOptions,
     default_profile: Option<Arc<str>>,
     known: Option<HashSet<String>>,
+    /// The last profile found in `known`: the same name (the same shared
+    /// allocation, from the interner) needs no lookup again.
+    last_known: Option<Arc<str>>,
     units: Interner,
     profiles: Interner,
     sites: Interner,
     strings: Interner,
 }
 
-fn field(rec: &csv::ByteRecord, i: Option<usize>) -> &str {
-    i.and_then(|i| rec.get(i))
-        .and_then(|b| std::str::from_utf8(b).ok())
-        .unwrap_or("")
-        .trim()
+/// A record's fields of the known columns, trimmed, indexed by [`Col`]
+/// (empty for a column the file does not have).
+type Fields<'r> = [&'r str; COLUMNS.len()];
+
+/// Bytes that can neither be nor end white space at the end of a field:
+/// ASCII other than the ASCII white space of `char::is_whitespace` (a
+/// table, because the test runs on both ends of every field).
+const PLAIN_END: [bool; 256] = {
+    let mut t = [false; 256];
+    let mut b = 0;
+    while b < 128 {
+        t[b] = !matches!(b as u8, b'\t'..=b'\r' | b' ');
+        b += 1;
+    }
+    t
+};
+
+/// `str::trim`, without its decoding of characters when both ends are
+/// ASCII and not white space, as they are in nearly every field.
+fn trim(s: &str) -> &str {
+    match (s.as_bytes().first(), s.as_bytes().last()) {
+        (Some(&a), Some(&z)) if PLAIN_END[usize::from(a)] && PLAIN_END[usize::from(z)] => s,
+        (None, _) => s,
+        _ => s.trim(),
+    }
 }
 
 impl RowParser<'_> {
-    fn get<'r>(&self, rec: &'r csv::ByteRecord, c: Col) -> &'r str {
-        field(rec, self.idx[c as usize])
+    /// The known columns' fields of `rec`, whose whole text is `text`:
+    /// sliced once, so the checks below neither re-validate nor re-trim.
+    fn fields<'r>(&self, rec: &Record<'_>, text: &'r str) -> Fields<'r> {
+        let mut f = [""; COLUMNS.len()];
+        for &(c, i) in &self.present {
+            if let (Some(slot), Some(&(a, b))) = (f.get_mut(c), rec.bounds.get(i)) {
+                *slot = text.get(a..b).map_or("", trim);
+            }
+        }
+        f
     }
 
-    fn number(
-        &self,
-        rec: &csv::ByteRecord,
-        c: Col,
-        expected: &str,
-        problems: &mut String,
-    ) -> Option<f64> {
-        let raw = self.get(rec, c);
+    fn number(&self, f: &Fields<'_>, c: Col, expected: &str, problems: &mut String) -> Option<f64> {
+        let raw = f[c as usize];
         if raw.is_empty() {
             return None;
         }
@@ -736,8 +1131,8 @@ impl RowParser<'_> {
         }
     }
 
-    fn celsius(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Celsius> {
-        let v = self.number(rec, c, "degrees Celsius", problems)?;
+    fn celsius(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<Celsius> {
+        let v = self.number(f, c, "degrees Celsius", problems)?;
         let (lo, hi) = TEMPERATURE_RANGE_C;
         if (lo..=hi).contains(&v) {
             return Some(Celsius(v));
@@ -759,8 +1154,8 @@ impl RowParser<'_> {
         None
     }
 
-    fn whole(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<u32> {
-        let raw = self.get(rec, c);
+    fn whole(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<u32> {
+        let raw = f[c as usize];
         if raw.is_empty() {
             return None;
         }
@@ -777,8 +1172,8 @@ impl RowParser<'_> {
         }
     }
 
-    fn ohms(&self, rec: &csv::ByteRecord, c: Col, problems: &mut String) -> Option<Milliohms> {
-        let v = self.number(rec, c, "milliohms", problems)?;
+    fn ohms(&self, f: &Fields<'_>, c: Col, problems: &mut String) -> Option<Milliohms> {
+        let v = self.number(f, c, "milliohms", problems)?;
         if v > 0.0 && v <= 100_000.0 {
             Some(Milliohms(v))
         } else {
@@ -793,12 +1188,18 @@ impl RowParser<'_> {
         }
     }
 
+    /// Judge one record, whose whole text (validated) is `text`: hand the
+    /// row to `sink` and return `true`, or return `false` with the reasons
+    /// in `problems`. (The row is made in the call to `sink`, not returned,
+    /// which saves copying it, some 300 bytes, on its way.)
     fn parse(
         &mut self,
-        rec: &csv::ByteRecord,
+        rec: &Record<'_>,
+        text: &str,
         line: u64,
         problems: &mut String,
-    ) -> Option<FleetRow> {
+        sink: &mut dyn FnMut(FleetRow),
+    ) -> bool {
         problems.clear();
         if rec.len() != self.width {
             let name = |i: usize| self.names.get(i).map(String::as_str).unwrap_or("?");
@@ -824,22 +1225,26 @@ impl RowParser<'_> {
                     " (in a semicolon-delimited file an SG list separated by ';' must be quoted)",
                 );
             }
-            return None;
+            return false;
         }
-        for (i, f) in rec.iter().enumerate() {
-            if f.len() > MAX_FIELD_BYTES {
-                let _ = write!(
-                    problems,
-                    "column `{}`: field is {} bytes, over the {} KiB limit for one field",
-                    self.names.get(i).map(String::as_str).unwrap_or("?"),
-                    f.len(),
-                    MAX_FIELD_BYTES / 1024
-                );
-                return None;
+        // No field can be over the limit when the whole record is not.
+        if text.len() > MAX_FIELD_BYTES {
+            for (i, f) in rec.iter().enumerate() {
+                if f.len() > MAX_FIELD_BYTES {
+                    let _ = write!(
+                        problems,
+                        "column `{}`: field is {} bytes, over the {} KiB limit for one field",
+                        self.names.get(i).map(String::as_str).unwrap_or("?"),
+                        f.len(),
+                        MAX_FIELD_BYTES / 1024
+                    );
+                    return false;
+                }
             }
         }
+        let f = &self.fields(rec, text);
 
-        let unit = self.get(rec, Col::UnitId);
+        let unit = f[Col::UnitId as usize];
         if unit.is_empty() {
             problem(
                 problems,
@@ -848,7 +1253,7 @@ impl RowParser<'_> {
             );
         }
 
-        let raw_time = self.get(rec, Col::TakenAt);
+        let raw_time = f[Col::TakenAt as usize];
         let taken_at = match parse_timestamp(raw_time) {
             Some(t) => {
                 if let Some(now) = self.opts.now.filter(|now| t > *now) {
@@ -873,7 +1278,7 @@ impl RowParser<'_> {
             }
         };
 
-        let raw_profile = self.get(rec, Col::Profile);
+        let raw_profile = f[Col::Profile as usize];
         let profile = if raw_profile.is_empty() {
             if self.default_profile.is_none() {
                 problem(
@@ -888,8 +1293,11 @@ impl RowParser<'_> {
         } else {
             Some(self.profiles.get(raw_profile))
         };
-        if let (Some(p), Some(known)) = (&profile, &self.known) {
-            if !known.contains(&**p) {
+        let seen = matches!((&profile, &self.last_known), (Some(p), Some(k)) if Arc::ptr_eq(p, k));
+        if let (Some(p), Some(known), false) = (&profile, &self.known, seen) {
+            if known.contains(&**p) {
+                self.last_known = Some(p.clone());
+            } else {
                 let near = known
                     .iter()
                     .map(|k| (strsim::damerau_levenshtein(p, k), k))
@@ -910,25 +1318,31 @@ impl RowParser<'_> {
             }
         }
 
-        let volts = self.number(rec, Col::Volts, "volts", problems).and_then(|v| {
+        let volts = self.number(f, Col::Volts, "volts", problems).and_then(|v| {
             if v.abs() <= MAX_ABS_VOLTS {
                 Some(Volts(v))
             } else {
                 problem(
                     problems,
                     Col::Volts,
-                    format_args!("{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"),
+                    format_args!(
+                        "{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"
+                    ),
                 );
                 None
             }
         });
 
-        let raw_sg = self.get(rec, Col::Sg);
-        let mut sg = Vec::new();
+        let raw_sg = f[Col::Sg as usize];
+        // Sized once: the row keeps it, so growth would cost a reallocation.
+        let mut sg = match raw_sg {
+            "" => Vec::new(),
+            _ => Vec::with_capacity(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count()),
+        };
         if !raw_sg.is_empty() {
             let (lo, hi) = SG_RANGE;
             for (k, part) in raw_sg.split(';').enumerate() {
-                let part = part.trim();
+                let part = trim(part);
                 match decimal(part, "a specific gravity like 1.265") {
                     Ok(v) if (lo..=hi).contains(&v) => sg.push(SpecificGravity(v)),
                     Ok(v) if (lo * 1000.0..=hi * 1000.0).contains(&v) => problem(
@@ -945,7 +1359,7 @@ impl RowParser<'_> {
                 }
             }
         }
-        if volts.is_none() && raw_sg.is_empty() && self.get(rec, Col::Volts).is_empty() {
+        if volts.is_none() && raw_sg.is_empty() && f[Col::Volts as usize].is_empty() {
             problem(
                 problems,
                 Col::Volts,
@@ -955,7 +1369,7 @@ impl RowParser<'_> {
             );
         }
 
-        let cells = self.whole(rec, Col::Cells, problems).and_then(|n| {
+        let cells = self.whole(f, Col::Cells, problems).and_then(|n| {
             if (1..=400).contains(&n) {
                 Some(n)
             } else {
@@ -980,9 +1394,9 @@ impl RowParser<'_> {
             }
         }
 
-        let position = self.whole(rec, Col::Position, problems);
+        let position = self.whole(f, Col::Position, problems);
         let temperature = if self.idx[Col::TempF as usize].is_some() {
-            self.number(rec, Col::TempF, "degrees Fahrenheit", problems)
+            self.number(f, Col::TempF, "degrees Fahrenheit", problems)
                 .and_then(|f| {
                     let c = Celsius::from_fahrenheit(f);
                     let (lo, hi) = TEMPERATURE_RANGE_C;
@@ -1002,11 +1416,11 @@ impl RowParser<'_> {
                     }
                 })
         } else {
-            self.celsius(rec, Col::TempC, problems)
+            self.celsius(f, Col::TempC, problems)
         };
-        let ambient = self.celsius(rec, Col::Ambient, problems);
+        let ambient = self.celsius(f, Col::Ambient, problems);
 
-        let raw_rest = self.get(rec, Col::RestH);
+        let raw_rest = f[Col::RestH as usize];
         let rest = if raw_rest.is_empty() {
             None
         } else {
@@ -1038,7 +1452,7 @@ impl RowParser<'_> {
             }
         };
 
-        let raw_after = self.get(rec, Col::After);
+        let raw_after = f[Col::After as usize];
         let after = [
             ("charge", After::Charge),
             ("discharge", After::Discharge),
@@ -1062,10 +1476,10 @@ impl RowParser<'_> {
             After::Unknown
         });
 
-        let ohmic = self.ohms(rec, Col::Ohmic, problems);
-        let baseline_ohmic = self.ohms(rec, Col::Baseline, problems);
+        let ohmic = self.ohms(f, Col::Ohmic, problems);
+        let baseline_ohmic = self.ohms(f, Col::Baseline, problems);
         let float_current = self
-            .number(rec, Col::FloatCurrent, "amperes", problems)
+            .number(f, Col::FloatCurrent, "amperes", problems)
             .and_then(|a| {
                 if a.abs() <= 10_000.0 {
                     Some(Amperes(a))
@@ -1083,7 +1497,7 @@ impl RowParser<'_> {
         // this, the value is a typing error or in the wrong unit (mAh).
         const CAPACITY_AH: (f64, f64) = (0.5, 20_000.0);
         let capacity = self
-            .number(rec, Col::Capacity, "ampere-hours", problems)
+            .number(f, Col::Capacity, "ampere-hours", problems)
             .and_then(|c| {
                 let (lo, hi) = CAPACITY_AH;
                 if (lo..=hi).contains(&c) {
@@ -1099,17 +1513,17 @@ impl RowParser<'_> {
             });
 
         if !problems.is_empty() {
-            return None;
+            return false;
         }
         let (Some(taken_at), Some(profile)) = (taken_at, profile) else {
-            return None;
+            return false;
         };
         let opt_name = |i: &mut Interner, s: &str| (!s.is_empty()).then(|| i.get(s));
-        let (raw_site, raw_string) = (self.get(rec, Col::Site), self.get(rec, Col::String));
+        let (raw_site, raw_string) = (f[Col::Site as usize], f[Col::String as usize]);
         let site = opt_name(&mut self.sites, raw_site);
         let string = opt_name(&mut self.strings, raw_string);
-        let note = self.get(rec, Col::Note);
-        Some(FleetRow {
+        let note = f[Col::Note as usize];
+        sink(FleetRow {
             source: SourceRef {
                 file: self.file.clone(),
                 line,
@@ -1132,14 +1546,9 @@ impl RowParser<'_> {
             float_current,
             ambient,
             capacity,
-        })
+        });
+        true
     }
-}
-
-fn record_line<R: Read>(rdr: &mut csv::Reader<LineGuard<R>>, rec: &csv::ByteRecord) -> u64 {
-    let end = rdr.position().byte();
-    let inner = memchr::memchr_iter(b'\n', rec.as_slice()).count() as u64;
-    rdr.get_mut().record_line(end, inner)
 }
 
 /// The start of an input as read before any record: the bytes up to and
@@ -1215,39 +1624,6 @@ fn read_prefix<R: Read>(
     })
 }
 
-fn csv_reader<R: Read>(input: R, delimiter: u8) -> csv::Reader<LineGuard<R>> {
-    csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(false)
-        .flexible(true)
-        .buffer_capacity(64 * 1024)
-        .from_reader(LineGuard::new(input, delimiter))
-}
-
-/// A whole-input error from the CSV reader, at the line it reached.
-fn csv_error<R>(name: &str, e: csv::Error, guard: &LineGuard<R>, line_offset: u64) -> IngestError {
-    let at = guard.current_line() + line_offset;
-    if guard.tripped {
-        return IngestError::LineTooLong {
-            file: name.to_string(),
-            line: at,
-            limit: MAX_LINE_BYTES,
-        };
-    }
-    match e.into_kind() {
-        csv::ErrorKind::Io(source) => IngestError::Io {
-            file: name.to_string(),
-            line: at,
-            source,
-        },
-        other => IngestError::Csv {
-            file: name.to_string(),
-            line: at,
-            message: format!("{:?}", other),
-        },
-    }
-}
-
 /// Read one input. Streaming: calls `sink` for every accepted record and
 /// `reject` for every rejected one; memory does not grow with the number of
 /// records. `name` labels the input in every message.
@@ -1264,18 +1640,27 @@ pub fn ingest<R: Read>(
     // The BOM is skipped before the guard so that its offsets are the CSV reader's.
     let mut head = io::Cursor::new(prefix.bytes);
     head.set_position(prefix.bom as u64);
-    let mut rdr = csv_reader(head.chain(reader), delimiter);
-    let mut rec = csv::ByteRecord::new();
-    let got = rdr
-        .read_byte_record(&mut rec)
-        .map_err(|e| csv_error(name, e, rdr.get_ref(), 0))?;
-    let header_line = record_line(&mut rdr, &rec);
+    let mut rdr = RecordReader::new(head.chain(reader), delimiter);
+    let (header_line, header) = read_header(name, &mut rdr)?;
     let (mut parser, mut stats) =
-        parse_header(name, got.then_some(&rec), header_line, delimiter, opts)?;
+        parse_header(name, header.as_ref(), header_line, delimiter, opts)?;
     let mut counts = RecordCounts::default();
     read_records(name, &mut rdr, &mut parser, 0, &mut counts, sink, reject)?;
     counts.finish(name, &mut stats);
     Ok(stats)
+}
+
+/// The first record (the header) and its line, or `None` for an input
+/// without records.
+fn read_header<R: Read>(
+    name: &str,
+    rdr: &mut RecordReader<R>,
+) -> Result<(u64, Option<csv::ByteRecord>), IngestError> {
+    match rdr.advance() {
+        Ok(Some(line)) => Ok((line, Some(rdr.record().to_byte_record()))),
+        Ok(None) => Ok((rdr.current_line(), None)),
+        Err(e) => Err(read_error(name, e, 0)),
+    }
 }
 
 /// Records read by [`read_records`], added up over the pieces of an input.
@@ -1338,7 +1723,7 @@ fn parse_header<'o>(
             })
         }
     };
-    check_utf8(rec, &[]).map_err(|what| IngestError::Encoding {
+    check_utf8(rec.as_slice(), rec.iter(), &[]).map_err(|what| IngestError::Encoding {
         file: name.to_string(),
         line: header_line,
         what,
@@ -1449,6 +1834,11 @@ fn parse_header<'o>(
         file: file.clone(),
         width: names.len(),
         names,
+        present: idx
+            .iter()
+            .enumerate()
+            .filter_map(|(c, i)| i.map(|i| (c, i)))
+            .collect(),
         idx,
         delimiter,
         opts,
@@ -1457,6 +1847,7 @@ fn parse_header<'o>(
             .known_profiles
             .as_ref()
             .map(|k| k.iter().cloned().collect()),
+        last_known: None,
         units: Interner::default(),
         profiles: Interner::default(),
         sites: Interner::default(),
@@ -1470,50 +1861,52 @@ fn parse_header<'o>(
 /// input's line `line_offset + 1`.
 fn read_records<R: Read>(
     name: &str,
-    rdr: &mut csv::Reader<LineGuard<R>>,
+    rdr: &mut RecordReader<R>,
     parser: &mut RowParser<'_>,
     line_offset: u64,
     counts: &mut RecordCounts,
     sink: &mut dyn FnMut(FleetRow),
     reject: &mut dyn FnMut(Rejected),
 ) -> Result<(), IngestError> {
-    let mut rec = csv::ByteRecord::new();
     let mut problems = String::new();
     loop {
-        match rdr.read_byte_record(&mut rec) {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => return Err(csv_error(name, e, rdr.get_ref(), line_offset)),
-        }
-        let line = record_line(rdr, &rec) + line_offset;
-        if rec
-            .iter()
-            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
-        {
+        let line = match rdr.advance() {
+            Ok(Some(line)) => line + line_offset,
+            Ok(None) => break,
+            Err(e) => return Err(read_error(name, e, line_offset)),
+        };
+        if rdr.record().is_blank() {
             counts.blank += 1;
             continue;
         }
         counts.read += 1;
-        if let Err(what) = check_utf8(&rec, &parser.names) {
-            return Err(IngestError::Encoding {
+        let text = match std::str::from_utf8(rdr.record().bytes) {
+            Ok(text) => text,
+            Err(_) => {
+                // The record's fields end to end are what must be UTF-8.
+                rdr.join_fields();
+                let rec = rdr.record();
+                match check_utf8(rec.bytes, rec.iter(), &parser.names) {
+                    Ok(text) => text,
+                    Err(what) => {
+                        return Err(IngestError::Encoding {
+                            file: name.to_string(),
+                            line,
+                            what,
+                        })
+                    }
+                }
+            }
+        };
+        if parser.parse(&rdr.record(), text, line, &mut problems, sink) {
+            counts.accepted += 1;
+        } else {
+            counts.rejected += 1;
+            reject(Rejected {
                 file: name.to_string(),
                 line,
-                what,
+                reason: std::mem::take(&mut problems),
             });
-        }
-        match parser.parse(&rec, line, &mut problems) {
-            Some(row) => {
-                counts.accepted += 1;
-                sink(row);
-            }
-            None => {
-                counts.rejected += 1;
-                reject(Rejected {
-                    file: name.to_string(),
-                    line,
-                    reason: std::mem::take(&mut problems),
-                });
-            }
         }
     }
     Ok(())
@@ -1701,26 +2094,6 @@ mod tests {
             run("unit_id,taken_at,volts,profile\nA,2024-03-01 08:00,12.6,agm\nB,\":\n").unwrap();
         assert_eq!(rejects.len(), 1, "{rejects:?}");
         assert_eq!(rejects[0].line, 3, "{rejects:?}");
-    }
-
-    #[test]
-    fn the_quoting_state_skips_quote_free_bytes_correctly() {
-        // The shortcut for bytes without a quote must give what stepping
-        // through every byte gives, from every state and cut anywhere.
-        let text = b"a,\"b\"\"c\nd\",e\nf\"g,h\n\"i\n";
-        let states = [
-            Quoting::FieldStart,
-            Quoting::Unquoted,
-            Quoting::Quoted,
-            Quoting::QuoteInQuoted,
-        ];
-        for start in states {
-            let want = text.iter().fold(start, |q, &b| q.step(b, b','));
-            for cut in 0..=text.len() {
-                let got = start.after(&text[..cut], b',').after(&text[cut..], b',');
-                assert_eq!(got, want, "from {start:?}, cut at {cut}");
-            }
-        }
     }
 
     #[test]
@@ -2089,6 +2462,275 @@ mod tests {
             "{}",
             rej[3]
         );
+    }
+
+    #[test]
+    fn the_quick_trim_is_str_trim() {
+        // The reference is the standard library's `str::trim` (Unicode
+        // White_Space): every ASCII character and some Unicode spaces and
+        // non-spaces at either end, alone and around a field.
+        let mut ends: Vec<String> = (0u8..=127).map(|b| char::from(b).to_string()).collect();
+        for c in [
+            '\u{85}', '\u{a0}', '\u{1680}', '\u{2003}', '\u{2028}', '\u{3000}', 'é', '°', '€',
+        ] {
+            ends.push(c.to_string());
+        }
+        ends.push(String::new());
+        for a in &ends {
+            for z in &ends {
+                for mid in ["", "12.41", " x ", "a b"] {
+                    let s = format!("{a}{mid}{z}");
+                    assert_eq!(trim(&s), s.trim(), "{s:?}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn the_plain_decimal_path_gives_what_str_parse_gives() {
+        use rand::{Rng, SeedableRng};
+        // The reference is the standard library's correctly rounded
+        // `str::parse::<f64>`: wherever the fast path answers, it must give
+        // the same bits; the common field forms must take it.
+        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
+        let alphabet = b"0123456789.-+e, x";
+        let mut hits = 0;
+        for _ in 0..200_000 {
+            let len = rng.gen_range(0..24);
+            let s: String = (0..len)
+                .map(|_| {
+                    // Mostly digits, so that long plain numbers are common.
+                    if rng.gen_bool(0.8) {
+                        char::from(b'0' + rng.gen_range(0..10))
+                    } else {
+                        char::from(alphabet[rng.gen_range(0..alphabet.len())])
+                    }
+                })
+                .collect();
+            if let Some(v) = plain_decimal(&s) {
+                hits += 1;
+                let want: f64 = s.parse().unwrap();
+                assert_eq!(v.to_bits(), want.to_bits(), "{s:?}");
+            }
+        }
+        assert!(hits > 20_000, "only {hits} strings took the fast path");
+        for s in [
+            "12.41",
+            "-4.5",
+            "+1.265",
+            "0",
+            "-0",
+            "-0.0",
+            "007.50",
+            "0.1",
+            "0.3",
+            "2.056",
+            "9007199254740992",
+            "0.000000000000000001",
+            "123456789012345.6",
+        ] {
+            let v = plain_decimal(s).unwrap_or_else(|| panic!("{s} is plain"));
+            assert_eq!(v.to_bits(), s.parse::<f64>().unwrap().to_bits(), "{s}");
+        }
+        // Beyond the exact range, or not plain: the general path decides.
+        for s in [
+            "",
+            "-",
+            "+",
+            ".",
+            ".5",
+            "5.",
+            "1e3",
+            "1,5",
+            "1.2.3",
+            "--1",
+            "1-2",
+            " 1",
+            "inf",
+            "NaN",
+            "9007199254740993",
+            "12345678901234567890",
+            "0.00000000000000000000001",
+        ] {
+            assert_eq!(plain_decimal(s), None, "{s}");
+        }
+    }
+
+    #[test]
+    fn a_known_profile_stays_known_and_an_unknown_one_is_named_every_time() {
+        // The last known profile is remembered; the one after it, and the
+        // same name again, must still be judged on their own.
+        let text = "unit_id,taken_at,volts,profile\n\
+            B1,2024-03-01 08:30,12.41,agm\n\
+            B2,2024-03-01 08:30,12.41,AGM\n\
+            B3,2024-03-01 08:30,12.41,agn\n\
+            B4,2024-03-01 08:30,12.41,agm\n\
+            B5,2024-03-01 08:30,12.41,agn\n\
+            B6,2024-03-01 08:30,12.41,gel\n";
+        let opts = IngestOptions {
+            known_profiles: Some(vec!["agm".into(), "gel".into()]),
+            ..IngestOptions::default()
+        };
+        let (rows, rej, _) = run_opts(text.as_bytes(), &opts).unwrap();
+        let units: Vec<&str> = rows.iter().map(|r| &*r.unit_id).collect();
+        assert_eq!(units, ["B1", "B2", "B4", "B6"]);
+        let lines: Vec<u64> = rej.iter().map(|r| r.line).collect();
+        assert_eq!(lines, [4, 6]);
+        for r in &rej {
+            assert_eq!(
+                r.reason,
+                "column `profile`: unknown profile 'agn' (did you mean 'agm'?)"
+            );
+        }
+    }
+
+    #[test]
+    fn a_line_is_split_in_place_as_csv_core_splits_it() {
+        use rand::{Rng, SeedableRng};
+        // The reference is csv_core, the csv crate's parser: every line
+        // without a quote (the reader leaves those to csv_core) must give
+        // its fields.
+        let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+        let alphabet = b",;\tabx1 \xc3\xa9";
+        let mut bounds = Vec::new();
+        for _ in 0..50_000 {
+            let len = rng.gen_range(0..40);
+            let line: Vec<u8> = (0..len)
+                .map(|_| alphabet[rng.gen_range(0..alphabet.len())])
+                .collect();
+            for delimiter in [b',', b';', b'\t'] {
+                if line.is_empty() {
+                    continue;
+                }
+                split_line(&line, delimiter, &mut bounds);
+                let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
+                let (mut out, mut ends) = ([0u8; 64], [0usize; 64]);
+                let (res, _, nout, nend) = core.read_record(&line, &mut out, &mut ends);
+                assert_eq!(res, csv_core::ReadRecordResult::InputEmpty);
+                let (res, _, _, last) = core.read_record(&[], &mut out[nout..], &mut ends[nend..]);
+                assert_eq!(res, csv_core::ReadRecordResult::Record);
+                let mut want = Vec::new();
+                let mut from = 0;
+                for &e in &ends[..nend + last] {
+                    want.push(out[from..e].to_vec());
+                    from = e;
+                }
+                let got: Vec<Vec<u8>> = bounds.iter().map(|&(a, b)| line[a..b].to_vec()).collect();
+                assert_eq!(got, want, "{line:?}");
+            }
+        }
+    }
+
+    /// Hands out its bytes in pieces of pseudo-random sizes, so that records
+    /// and line ends fall across reads.
+    struct Pieces<'a> {
+        data: &'a [u8],
+        rng: rand::rngs::StdRng,
+    }
+
+    impl Read for Pieces<'_> {
+        fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
+            use rand::Rng;
+            let most = out.len().min(self.data.len());
+            let n = if most == 0 {
+                0
+            } else {
+                self.rng.gen_range(1..=most.min(300))
+            };
+            out[..n].copy_from_slice(&self.data[..n]);
+            self.data = &self.data[n..];
+            Ok(n)
+        }
+    }
+
+    #[test]
+    fn the_record_reader_reads_what_the_csv_crate_reads() {
+        use rand::{Rng, SeedableRng};
+        // The reference is the csv crate's reader with the options this
+        // module used to give it: the same fields for every record, and the
+        // line is the one of the record's first byte, found from the csv
+        // reader's position (where it began, before skipped line ends).
+        let mut rng = rand::rngs::StdRng::seed_from_u64(3);
+        let pieces = [
+            &b"a"[..],
+            b"12.5",
+            b" ",
+            b"\"",
+            b",",
+            b";",
+            b"\t",
+            b"\r",
+            b"\n",
+            b"\r\n",
+            b"\xc3\xa9",
+            b"\xef\xbb\xbf",
+        ];
+        for round in 0..3000 {
+            let mut data = Vec::new();
+            for _ in 0..rng.gen_range(0..60) {
+                // Mostly plain text, so that most records are plain lines.
+                let i = if rng.gen_bool(0.7) {
+                    rng.gen_range(0..3)
+                } else {
+                    rng.gen_range(0..pieces.len())
+                };
+                data.extend_from_slice(pieces[i]);
+            }
+            if round % 100 == 0 {
+                // A line longer than a read, and a quoted field across reads.
+                data.extend(std::iter::repeat(b'x').take(70_000));
+                data.extend_from_slice(b",\"q\nq\"\n");
+            }
+            let delimiter = [b',', b';', b'\t'][round % 3];
+            let seed = rng.gen();
+            let mut want = csv::ReaderBuilder::new()
+                .delimiter(delimiter)
+                .has_headers(false)
+                .flexible(true)
+                .buffer_capacity(64 * 1024)
+                .from_reader(Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                });
+            let mut got = RecordReader::new(
+                Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                },
+                delimiter,
+            );
+            // The csv crate drops a byte-order mark when its first read
+            // (of 64 KiB asked) gives at least its 3 bytes.
+            let stripped = data.starts_with(b"\xef\xbb\xbf") && {
+                let mut first_read = Pieces {
+                    data: &data,
+                    rng: rand::rngs::StdRng::seed_from_u64(seed),
+                };
+                first_read.read(&mut vec![0; 64 * 1024]).unwrap() >= 3
+            };
+            let mut rec = csv::ByteRecord::new();
+            loop {
+                let start = want.position().byte() as usize;
+                let more = want.read_byte_record(&mut rec).unwrap();
+                let line = got.advance().unwrap();
+                assert_eq!(line.is_some(), more, "{data:?}");
+                let Some(line) = line else { break };
+                let fields: Vec<&[u8]> = got.record().iter().collect();
+                let expected: Vec<&[u8]> = rec.iter().collect();
+                assert_eq!(fields, expected, "{data:?}");
+                // Line ends skipped before the record, and a byte-order mark
+                // dropped at the very start, are not the record's.
+                let mut first = start;
+                if first == 0 && stripped {
+                    first = 3;
+                }
+                while matches!(data.get(first), Some(b'\r' | b'\n')) {
+                    first += 1;
+                }
+                let before = memchr::memchr_iter(b'\n', &data[..first]).count() as u64;
+                assert_eq!(line, 1 + before, "{data:?}");
+            }
+        }
     }
 
     #[test]

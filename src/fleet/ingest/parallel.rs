@@ -17,9 +17,8 @@
 //! that line end, and its line numbers are offset by the line ends before it.
 
 use super::{
-    csv_error, csv_reader, parse_header, read_prefix, read_records, record_line, FleetRow,
-    IngestError, IngestOptions, IngestStats, Quoting, RecordCounts, Rejected, RowParser,
-    MAX_LINE_BYTES,
+    parse_header, read_header, read_prefix, read_records, FleetRow, IngestError, IngestOptions,
+    IngestStats, Quoting, RecordCounts, RecordReader, Rejected, RowParser, MAX_LINE_BYTES,
 };
 use std::io::{self, Read};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -141,14 +140,9 @@ where
             reject,
         );
     };
-    let mut rdr = csv_reader(&body[..header_end], delimiter);
-    let mut rec = csv::ByteRecord::new();
-    let got = rdr
-        .read_byte_record(&mut rec)
-        .map_err(|e| csv_error(name, e, rdr.get_ref(), 0))?;
-    let header_line = record_line(&mut rdr, &rec);
-    let (parser, mut stats) =
-        parse_header(name, got.then_some(&rec), header_line, delimiter, opts)?;
+    let mut rdr = RecordReader::new(&body[..header_end], delimiter);
+    let (header_line, header) = read_header(name, &mut rdr)?;
+    let (parser, mut stats) = parse_header(name, header.as_ref(), header_line, delimiter, opts)?;
     let first_data_line = 1 + count_line_ends(&body[..header_end]);
     let rest = body[header_end..].to_vec();
     drop(prefix);
@@ -341,7 +335,7 @@ fn work<T, M>(
             counts: RecordCounts::default(),
             bytes: chunk.bytes.len() as u64,
         };
-        let mut rdr = csv_reader(&chunk.bytes[..], parser.delimiter);
+        let mut rdr = RecordReader::new(&chunk.bytes[..], parser.delimiter);
         let result = read_records(
             name,
             &mut rdr,
