@@ -829,7 +829,10 @@ impl<R: Read> RecordReader<R> {
 /// Shares repeated names. Emptied when full so its size stays bounded.
 #[derive(Clone, Default)]
 struct Interner {
-    set: HashSet<Arc<str>>,
+    // ahash, keyed at random per process like std's SipHash (so a crafted
+    // file cannot make lookups collide), at a fraction of its cost: every
+    // record of a file sorted by time looks up a unit it did not just see.
+    set: HashSet<Arc<str>, ahash::RandomState>,
     last: Option<Arc<str>>,
 }
 
