@@ -492,8 +492,8 @@ struct RecordReader<R> {
     /// The unread bytes are `buf[pos..filled]`.
     pos: usize,
     filled: usize,
-    /// `buf[pos..scanned]` holds no line end (a long line is not searched
-    /// again after each read).
+    /// `buf[pos..scanned]` holds no line end and no quote (a long line is
+    /// not searched again after each read).
     scanned: usize,
     /// The input has ended (a read gave 0 bytes).
     eof: bool,
@@ -536,7 +536,9 @@ impl<'a> Record<'a> {
     /// The fields' bytes.
     fn iter(&self) -> impl Iterator<Item = &'a [u8]> + '_ {
         let bytes = self.bytes;
-        self.bounds.iter().map(move |&(a, b)| &bytes[a..b])
+        self.bounds
+            .iter()
+            .map(move |&(a, b)| bytes.get(a..b).unwrap_or_default())
     }
 
     /// Whether every field is empty or ASCII white space (what spreadsheets
@@ -829,7 +831,10 @@ impl<R: Read> RecordReader<R> {
 /// Shares repeated names. Emptied when full so its size stays bounded.
 #[derive(Clone, Default)]
 struct Interner {
-    set: HashSet<Arc<str>>,
+    // ahash, keyed at random per process like std's SipHash (so a crafted
+    // file cannot make lookups collide), at a fraction of its cost: every
+    // record of a file sorted by time looks up a unit it did not just see.
+    set: HashSet<Arc<str>, ahash::RandomState>,
     last: Option<Arc<str>>,
 }
 
