@@ -199,26 +199,98 @@ pub fn write_pretty(
     w.write_all(b"\n}")
 }
 
-/// A value's pretty JSON as it appears `depth` levels deep: serde's pretty
-/// printer indents by two spaces a level and never puts a raw line end
-/// inside a string (it escapes them), so every line end is followed by the
-/// extra indentation.
+/// A value's pretty JSON as it appears `depth` levels deep, written by
+/// [`NestedPretty`] straight into `w`.
 fn write_nested(w: &mut impl Write, value: &impl Serialize, depth: usize) -> std::io::Result<()> {
-    let mut buf = Vec::new();
-    serde_json::to_writer_pretty(&mut buf, value).map_err(std::io::Error::from)?;
-    indent_into(w, &buf, depth)
+    let mut ser = serde_json::Serializer::with_formatter(
+        w,
+        NestedPretty {
+            depth,
+            has_value: false,
+        },
+    );
+    value.serialize(&mut ser).map_err(std::io::Error::from)
 }
 
-fn indent_into(w: &mut impl Write, pretty: &[u8], depth: usize) -> std::io::Result<()> {
-    const SPACES: &[u8] = b"        ";
-    let pad = &SPACES[..(2 * depth).min(SPACES.len())];
-    let mut rest = pretty;
-    while let Some(i) = memchr::memchr(b'\n', rest) {
-        w.write_all(&rest[..=i])?;
-        w.write_all(pad)?;
-        rest = &rest[i + 1..];
+/// serde_json's `PrettyFormatter` (two spaces a level), starting `depth`
+/// levels in: its methods are serde_json's own, with the indent level
+/// counted from `depth` (serde's formatter always starts at the left margin).
+struct NestedPretty {
+    depth: usize,
+    has_value: bool,
+}
+
+impl NestedPretty {
+    fn indent<W: ?Sized + Write>(&self, w: &mut W) -> std::io::Result<()> {
+        for _ in 0..self.depth {
+            w.write_all(b"  ")?;
+        }
+        Ok(())
     }
-    w.write_all(rest)
+}
+
+impl serde_json::ser::Formatter for NestedPretty {
+    fn begin_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.depth += 1;
+        self.has_value = false;
+        w.write_all(b"[")
+    }
+
+    fn end_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.depth -= 1;
+        if self.has_value {
+            w.write_all(b"\n")?;
+            self.indent(w)?;
+        }
+        w.write_all(b"]")
+    }
+
+    fn begin_array_value<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        w.write_all(if first { b"\n" } else { b",\n" })?;
+        self.indent(w)
+    }
+
+    fn end_array_value<W: ?Sized + Write>(&mut self, _w: &mut W) -> std::io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
+
+    fn begin_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.depth += 1;
+        self.has_value = false;
+        w.write_all(b"{")
+    }
+
+    fn end_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.depth -= 1;
+        if self.has_value {
+            w.write_all(b"\n")?;
+            self.indent(w)?;
+        }
+        w.write_all(b"}")
+    }
+
+    fn begin_object_key<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        w.write_all(if first { b"\n" } else { b",\n" })?;
+        self.indent(w)
+    }
+
+    fn begin_object_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        w.write_all(b": ")
+    }
+
+    fn end_object_value<W: ?Sized + Write>(&mut self, _w: &mut W) -> std::io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
 }
 
 /// One block of array items, as serde writes them one level inside the
