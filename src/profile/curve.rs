@@ -59,6 +59,8 @@ pub struct MonotoneCurve {
     volts_index: SegmentIndex,
     /// Per segment, the [`newton_error_factor`] of its Bézier in `nt`.
     newton_error_nt: Vec<f64>,
+    /// Per segment, 1 / its width in % of charge, for first guesses in `nt`.
+    inverse_widths: Vec<f64>,
     /// The greatest |d²V/dSOC²| over the curve, V per cell per %².
     max_curvature_v_per_pct2: f64,
     /// The least dV/dSOC over the curve, V per cell per %.
@@ -143,8 +145,30 @@ pub(crate) fn bracketed_newton(
     tolerance: f64,
     close: impl Fn(f64, f64) -> bool,
 ) -> f64 {
-    let mut x = start;
-    for _ in 0..100 {
+    // The first step before the bracket's bookkeeping, since from a good
+    // guess it mostly ends the solve. Whether it is a Newton step is the same
+    // test on the bracket as given as on the one it shrinks to (a Newton step
+    // moves away from the end that moves to `start`), so this is the loop's
+    // first pass, reordered.
+    let (value, slope) = f(start);
+    if value == 0.0 {
+        return start;
+    }
+    let newton = start - value / slope;
+    let is_newton = slope > 0.0 && (lo..=hi).contains(&newton);
+    if is_newton && close(start, newton) {
+        return newton;
+    }
+    if value < 0.0 {
+        lo = start;
+    } else {
+        hi = start;
+    }
+    let mut x = if is_newton { newton } else { 0.5 * (lo + hi) };
+    if (x - start).abs() <= tolerance || hi - lo <= tolerance {
+        return x;
+    }
+    for _ in 1..100 {
         let (value, slope) = f(x);
         if value == 0.0 {
             break;
@@ -355,6 +379,7 @@ impl MonotoneCurve {
             .fold(f64::INFINITY, f64::min);
         let mut curve = MonotoneCurve {
             newton_error_nt,
+            inverse_widths: widths.iter().map(|h| 1.0 / h).collect(),
             max_curvature_v_per_pct2,
             min_slope_v_per_pct,
             soc_index: SegmentIndex::new(&xs),
@@ -556,9 +581,10 @@ impl MonotoneCurve {
         let seg = self.segments[j];
         let (x0, x1) = (self.soc_percent[j], self.soc_percent[j + 1]);
         // The segment's Bézier rises with nt, so [0, 1] brackets the root.
-        let chord = (v - seg[0]) / (seg[3] - seg[0]);
+        let chord = || (v - seg[0]) / (seg[3] - seg[0]);
+        // A guess need not map to nt exactly: multiply, don't divide.
         let start = guess
-            .map_or(chord, |g| (g.soc - x0) / (x1 - x0))
+            .map_or_else(chord, |g| (g.soc - x0) * self.inverse_widths[j])
             .clamp(0.0, 1.0);
         let factor = self.newton_error_nt[j];
         let nt = bracketed_newton(

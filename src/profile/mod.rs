@@ -121,7 +121,9 @@ pub struct Referred {
     pub lookup: SocLookup,
     /// The per-cell open-circuit voltage at 25 °C.
     pub ocv25: Volts,
-    /// The temperature coefficient used, at that state of charge.
+    /// The temperature coefficient used, at that state of charge (the
+    /// tabulated one as the solver reads it: [`Profile::ocv_coefficient`]
+    /// to within rounding).
     pub coefficient: MillivoltsPerKelvin,
 }
 
@@ -348,14 +350,14 @@ impl Profile {
         }
         // The first guess solves the same equation by 25 °C voltage w on the
         // inverse table: w + K(w)·dt = v, with K the coefficient tabulated by
-        // voltage, by two Newton steps from w = v (each one look-up, for K and
-        // its slope), then s = S(w). That leaves the one Newton step on g
-        // below mostly enough (see `close`). A fixed coefficient gives w
-        // outright.
+        // voltage (each look-up gives K and its slope), then s = S(w). That
+        // leaves the one Newton step on g below mostly enough (see `close`).
+        // A fixed coefficient gives w outright.
         let (k_fixed, _) = self.coefficient_at_ends_mv_per_k;
         let kt = &self.coefficient_by_volts_mv_per_k;
         let mut w = v - k_fixed * dt;
         if kt.len() >= 2 {
+            // Two Newton steps from w = v.
             w = v;
             for _ in 0..2 {
                 let Some((i, f)) = self.curve.table_position(w) else {
@@ -381,12 +383,15 @@ impl Profile {
         // cell), which the Newton error bound below needs.
         let segment = std::cell::Cell::new(hint);
         let piece = std::cell::Cell::new((s_lo, s_lo));
+        // The coefficient where g was last evaluated: its slope and cell.
+        let last = std::cell::Cell::new((f64::NAN, 0.0, 0.0, (0.0, 0.0)));
         let g = |s: f64| {
             let s = s.clamp(s_lo, s_hi);
             let i = self.curve.segment_near(s, segment.get());
             segment.set(i);
             let (v25, slope) = self.curve.volts_and_slope_on(s, i);
             let (k, k_slope, (cell_lo, cell_hi)) = self.coefficient_slope_and_cell(s);
+            last.set((s, k, k_slope, (cell_lo, cell_hi)));
             let (seg_lo, seg_hi) = self.curve.segment_span(i);
             // Plain comparisons: none of these is NaN, and f64::max pays for NaN.
             piece.set((
@@ -409,7 +414,15 @@ impl Profile {
                 && factor * (next - x) * (next - x) <= REFERRAL_TOLERANCE_PERCENT
         };
         let s = curve::bracketed_newton(g, (s_lo, s_hi), s, REFERRAL_TOLERANCE_PERCENT, close);
-        let coefficient = self.ocv_coefficient(SocPercent(s));
+        // The coefficient at s: mostly on the straight piece of the table
+        // where g was last evaluated, so read along it from there instead of
+        // looking it up again (the same line; they differ by rounding).
+        let (x, k_x, k_slope, (cell_lo, cell_hi)) = last.get();
+        let coefficient = MillivoltsPerKelvin(if cell_lo <= s && s <= cell_hi {
+            k_x + k_slope * (s - x)
+        } else {
+            self.coefficient_and_slope(s).0
+        });
         Referred {
             lookup: SocLookup {
                 soc: SocPercent(s),
