@@ -15,8 +15,12 @@
 //! from a quarter of an hour to two days or unknown, and on flooded profiles
 //! every other reading with one hydrometer value per cell. Each set is timed
 //! with and without its SG. The machine may be shared, so each figure is the
-//! fastest of the rounds; `perf stat -e instructions:u` on `--only estimate`
-//! counts work regardless of contention.
+//! fastest of the rounds. For a count of work that contention does not move,
+//! run `--only estimate` (or `--only assess`, or `--only none` for the set-up
+//! alone) under `perf stat -e instructions:u`, or under
+//! `valgrind --tool=cachegrind --cache-sim=no` where the machine has no
+//! hardware counters; with `--rounds 1`, subtract the set-up and divide by
+//! twice the readings (both sets are run once).
 
 use rand::{Rng, SeedableRng};
 use restvolt::correct::{assess, estimate, After, Reading, Setup};

@@ -594,7 +594,9 @@ struct Core {
 
 /// State of charge, its interval and the flags of one reading, without the
 /// words: what a fleet analysis needs from every reading it folds in. The
-/// numbers are those [`assess`] gives for the same reading.
+/// numbers are those [`assess`] gives for the same reading, to the bit: both
+/// run the same arithmetic, and only the writing of words (evidence, the
+/// budget's lines, per-cell SG lists) is left out (a test holds them equal).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Estimate {
     /// State of charge.
