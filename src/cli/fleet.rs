@@ -216,11 +216,16 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         &args.name,
         threads_for(args.threads.map(usize::from)),
     )?;
-    Ok(if report.summary.rows_rejected > 0 {
+    let code = if report.summary.rows_rejected > 0 {
         EXIT_REJECTED_ROWS
     } else {
         0
-    })
+    };
+    // The command ends here and the process with it: freeing a large report
+    // piece by piece (50,000 units, a million small allocations) took a
+    // twelfth of a fleet run, for memory the system takes back at exit anyway.
+    std::mem::forget(report);
+    Ok(code)
 }
 
 /// Render and write a report.

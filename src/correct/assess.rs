@@ -213,14 +213,29 @@ struct Flags {
     /// The flags raised, with words.
     list: Vec<Flag>,
     words: bool,
+    /// Whether the uncertainty budget is written out too.
+    budget_words: bool,
+}
+
+/// How much of an assessment is written in words.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Words {
+    /// Numbers and flag codes only ([`estimate`]).
+    Numbers,
+    /// Flags with their evidence and the reasons, no written budget
+    /// ([`assess_without_budget`]).
+    Evidence,
+    /// Everything ([`assess`]).
+    Full,
 }
 
 impl Flags {
-    fn new(words: bool) -> Flags {
+    fn new(words: Words) -> Flags {
         Flags {
             codes: FlagCodes::new(),
             list: Vec::new(),
-            words,
+            words: words != Words::Numbers,
+            budget_words: words == Words::Full,
         }
     }
 
@@ -436,7 +451,7 @@ fn core(
     reading: &Reading,
     setup: &Setup,
     rules: &Rules,
-    words: bool,
+    words: Words,
 ) -> Result<Core, CorrectError> {
     if reading.volts.is_none() && reading.sg.is_empty() {
         return Err(CorrectError::NoReading);
@@ -628,7 +643,7 @@ pub fn estimate(
     setup: &Setup,
     rules: &Rules,
 ) -> Result<Estimate, CorrectError> {
-    let c = core(profile, reading, setup, rules, false)?;
+    let c = core(profile, reading, setup, rules, Words::Numbers)?;
     Ok(Estimate {
         soc_percent: c.soc,
         soc_interval_percent: c.interval,
@@ -644,6 +659,29 @@ pub fn assess(
     setup: &Setup,
     rules: &Rules,
 ) -> Result<Assessment, CorrectError> {
+    assess_with(profile, reading, setup, rules, Words::Full)
+}
+
+/// [`assess`] without the written uncertainty budget ([`Assessment::budget`]
+/// is `None`; everything else is the same, tested): for a fleet report, which
+/// shows each unit's flags and reasons but not the budget. The budget's
+/// wording was half the cost of assessing a unit's latest reading.
+pub fn assess_without_budget(
+    profile: &Profile,
+    reading: &Reading,
+    setup: &Setup,
+    rules: &Rules,
+) -> Result<Assessment, CorrectError> {
+    assess_with(profile, reading, setup, rules, Words::Evidence)
+}
+
+fn assess_with(
+    profile: &Profile,
+    reading: &Reading,
+    setup: &Setup,
+    rules: &Rules,
+    words: Words,
+) -> Result<Assessment, CorrectError> {
     let Core {
         n,
         t,
@@ -654,7 +692,7 @@ pub fn assess(
         interval,
         basis,
         flags,
-    } = core(profile, reading, setup, rules, true)?;
+    } = core(profile, reading, setup, rules, words)?;
     let frozen = flags.has(FlagCode::FreezeRisk);
     let flags = flags.list;
     let mut reasons = Vec::new();
@@ -771,7 +809,7 @@ fn volts_path(
     ];
     let u = &u[..if two_sided { 6 } else { 5 }];
     let expanded_mv = COVERAGE_FACTOR * root_sum_of_squares(u.iter().copied());
-    let budget = flags.words.then(|| {
+    let budget = flags.budget_words.then(|| {
         let mut contributions = Vec::with_capacity(u.len());
         let mut add = |input, basis| {
             contributions.push(Contribution {

@@ -294,6 +294,24 @@ fn the_numbers_only_estimate_is_the_assessments_numbers() {
                 assess(p, &r, &Setup::default(), &Rules::default()),
                 estimate(p, &r, &Setup::default(), &Rules::default()),
             );
+            // The fleet's lean assessment is the full one without its written budget.
+            let lean = assess_without_budget(p, &r, &Setup::default(), &Rules::default());
+            match (&full, lean) {
+                (Ok(a), Ok(l)) => {
+                    assert!(l.budget.is_none());
+                    assert_eq!(
+                        l,
+                        Assessment {
+                            budget: None,
+                            ..a.clone()
+                        },
+                        "{} {r:?}",
+                        p.id()
+                    );
+                }
+                (Err(a), Err(l)) => assert_eq!(a.to_string(), l.to_string()),
+                (a, l) => panic!("{}: {r:?}: assess {a:?}, without budget {l:?}", p.id()),
+            }
             match (full, quick) {
                 (Ok(a), Ok(e)) => {
                     assert_eq!(a.soc_percent.to_bits(), e.soc_percent.to_bits());

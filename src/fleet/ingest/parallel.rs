@@ -249,6 +249,9 @@ fn cut_chunks<R: Read>(
     while !eof && !stop.load(Ordering::Relaxed) {
         target = target.max(buf.len() + 1);
         let want = target - buf.len();
+        // Room for the whole chunk at once: grown by read_to_end's doubling,
+        // each chunk was copied several times over on its way to full size.
+        buf.reserve_exact(want);
         // read_to_end grows the buffer as bytes come, without zero-filling
         // ahead, and retries interrupted reads.
         match (&mut reader).take(want as u64).read_to_end(&mut buf) {
