@@ -7,9 +7,9 @@
 //!
 //! The input is made by `restvolt generate` (seeded, so every run reads the
 //! same file) and cached in `target/bench-data/`. Each contender runs as its
-//! own process, in turn, `--runs` times (default 3); the median wall time
-//! and the peak resident memory (from `wait4`) of each are printed, then the
-//! ratio. The baseline is this program re-run with `--baseline FILE`: it only
+//! own process, in turn, `--runs` times (default 3); the median and the
+//! fastest wall time and the peak resident memory (from `wait4`) of each are
+//! printed, then the ratios. The baseline is this program re-run with `--baseline FILE`: it only
 //! parses the CSV with the csv crate (one reused `ByteRecord`) and converts
 //! every numeric field to a number, so the ratio says what the analysis costs
 //! on top of reading the data at all. The same analysis on one thread
@@ -71,24 +71,27 @@ fn main() {
     let (bt, bm) = median(&base);
     let (ft, fm) = median(&full);
     let (st, sm) = median(&single);
+    let fastest = |v: &[(Duration, u64)]| v.iter().map(|x| x.0).min().unwrap_or_default();
+    let (bf, ff, sf) = (fastest(&base), fastest(&full), fastest(&single));
+    println!("                                    median   fastest");
+    for (name, t, f, m) in [
+        ("baseline  (csv parse only)", bt, bf, bm),
+        ("restvolt fleet --format json", ft, ff, fm),
+        ("restvolt fleet ... --threads 1", st, sf, sm),
+    ] {
+        println!(
+            "{name:<32} {:>8.3} s {:>8.3} s  peak RSS {:>7.1} MB",
+            t.as_secs_f64(),
+            f.as_secs_f64(),
+            m as f64 / 1e6
+        );
+    }
+    // On a shared machine the fastest run is the least disturbed one; both are
+    // printed, and the runs of the contenders are interleaved.
     println!(
-        "baseline  (csv parse only)        {:>8.3} s  peak RSS {:>7.1} MB",
-        bt.as_secs_f64(),
-        bm as f64 / 1e6
-    );
-    println!(
-        "restvolt fleet --format json      {:>8.3} s  peak RSS {:>7.1} MB",
-        ft.as_secs_f64(),
-        fm as f64 / 1e6
-    );
-    println!(
-        "restvolt fleet ... --threads 1     {:>8.3} s  peak RSS {:>7.1} MB",
-        st.as_secs_f64(),
-        sm as f64 / 1e6
-    );
-    println!(
-        "ratio {:.2}x (target at most 1.30x), peak memory {:.1} MB (target under 150 MB)",
+        "ratio {:.2}x by medians, {:.2}x by fastest runs (target at most 1.30x), peak memory {:.1} MB (target under 150 MB)",
         ft.as_secs_f64() / bt.as_secs_f64(),
+        ff.as_secs_f64() / bf.as_secs_f64(),
         fm as f64 / 1e6
     );
 }
