@@ -120,10 +120,14 @@ impl FleetState {
 
     /// Fold in a row made ready by [`FleetState::prepare`].
     pub fn add_prepared(&mut self, p: PreparedRow) {
-        self.units
-            .entry(p.row.unit_id.clone())
-            .or_default()
-            .add(p.row, p.soc, p.rested, p.short, p.ageing);
+        // Look the unit up by its name before cloning the name for a new
+        // entry: a clone is an atomic count on a name the reading threads
+        // share, and nearly every row is of a unit already there.
+        let summary = match self.units.get_mut(&*p.row.unit_id) {
+            Some(s) => s,
+            None => self.units.entry(p.row.unit_id.clone()).or_default(),
+        };
+        summary.add(p.row, p.soc, p.rested, p.short, p.ageing);
     }
 
     /// Read one input into the state: rows are folded in as they stream by,

@@ -227,22 +227,38 @@ impl NestedPretty {
         }
         Ok(())
     }
-}
 
-impl serde_json::ser::Formatter for NestedPretty {
-    fn begin_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+    /// `[` or `{`: one level in, nothing inside yet.
+    fn open<W: ?Sized + Write>(&mut self, w: &mut W, bracket: &[u8]) -> std::io::Result<()> {
         self.depth += 1;
         self.has_value = false;
-        w.write_all(b"[")
+        w.write_all(bracket)
     }
 
-    fn end_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+    /// `]` or `}`, on a line of its own when something was inside.
+    fn close<W: ?Sized + Write>(&mut self, w: &mut W, bracket: &[u8]) -> std::io::Result<()> {
         self.depth -= 1;
         if self.has_value {
             w.write_all(b"\n")?;
             self.indent(w)?;
         }
-        w.write_all(b"]")
+        w.write_all(bracket)
+    }
+
+    /// The start of an array item or an object key: a new line at the depth.
+    fn next<W: ?Sized + Write>(&mut self, w: &mut W, first: bool) -> std::io::Result<()> {
+        w.write_all(if first { b"\n" } else { b",\n" })?;
+        self.indent(w)
+    }
+}
+
+impl serde_json::ser::Formatter for NestedPretty {
+    fn begin_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.open(w, b"[")
+    }
+
+    fn end_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.close(w, b"]")
     }
 
     fn begin_array_value<W: ?Sized + Write>(
@@ -250,8 +266,7 @@ impl serde_json::ser::Formatter for NestedPretty {
         w: &mut W,
         first: bool,
     ) -> std::io::Result<()> {
-        w.write_all(if first { b"\n" } else { b",\n" })?;
-        self.indent(w)
+        self.next(w, first)
     }
 
     fn end_array_value<W: ?Sized + Write>(&mut self, _w: &mut W) -> std::io::Result<()> {
@@ -260,18 +275,11 @@ impl serde_json::ser::Formatter for NestedPretty {
     }
 
     fn begin_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
-        self.depth += 1;
-        self.has_value = false;
-        w.write_all(b"{")
+        self.open(w, b"{")
     }
 
     fn end_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
-        self.depth -= 1;
-        if self.has_value {
-            w.write_all(b"\n")?;
-            self.indent(w)?;
-        }
-        w.write_all(b"}")
+        self.close(w, b"}")
     }
 
     fn begin_object_key<W: ?Sized + Write>(
@@ -279,8 +287,7 @@ impl serde_json::ser::Formatter for NestedPretty {
         w: &mut W,
         first: bool,
     ) -> std::io::Result<()> {
-        w.write_all(if first { b"\n" } else { b",\n" })?;
-        self.indent(w)
+        self.next(w, first)
     }
 
     fn begin_object_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
