@@ -546,7 +546,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
     let judged = state
         .units_by_id()
         .into_iter()
-        .filter_map(|(id, s)| judge_unit(id, s, store, settings))
+        .filter_map(|(id, s)| judge_unit(id, s, store, settings).map(Box::new))
         .collect();
     rank(overview, judged, store, settings)
 }
@@ -586,11 +586,13 @@ pub fn finish_owned_on(
     // Each unit is judged into its own slot, and its summary dropped there
     // and then, so that the report replaces the state piece by piece rather
     // than being built beside it.
-    let mut slots: Vec<Option<Judged>> = Vec::new();
+    // Boxed: a slot is a pointer until its unit is judged, so that the
+    // reports' memory grows as the summaries' shrinks.
+    let mut slots: Vec<Option<Box<Judged>>> = Vec::new();
     slots.resize_with(units.len(), || None);
-    let judge_run = |units: &mut [(Arc<str>, UnitSummary)], slots: &mut [Option<Judged>]| {
+    let judge_run = |units: &mut [(Arc<str>, UnitSummary)], slots: &mut [Option<Box<Judged>>]| {
         for ((id, s), slot) in units.iter_mut().zip(slots) {
-            *slot = judge_unit(id, s, store, settings);
+            *slot = judge_unit(id, s, store, settings).map(Box::new);
             *s = UnitSummary::default();
         }
     };
@@ -611,9 +613,12 @@ pub fn finish_owned_on(
 
 /// The rules across units (peers, a string's hydrometer readings, float),
 /// the final actions, the ranking and the summary.
+// Boxed on purpose: judged units are made one at a time while the summaries
+// are freed, and sorted by pointer; a flat Vec of them raised the peak by 20 MB.
+#[allow(clippy::vec_box)]
 fn rank(
     overview: Overview,
-    mut judged: Vec<Judged>,
+    mut judged: Vec<Box<Judged>>,
     store: &ProfileStore,
     settings: &FleetSettings,
 ) -> FleetReport {
@@ -703,8 +708,8 @@ fn rank(
     }
     // Most urgent action first, then lowest state of charge (none last), then
     // unit id. The units come in id order and the sort is stable, so the id
-    // needs no comparing; the keys are worked out once and the reports (several
-    // hundred bytes each) moved once into place.
+    // needs no comparing; the keys are worked out once and only the boxes'
+    // pointers move.
     debug_assert!(judged
         .windows(2)
         .all(|w| w[0].report.unit_id < w[1].report.unit_id));
@@ -792,7 +797,7 @@ fn student_t_95(dof: u64) -> f64 {
 /// Judged units with a group key and a value: each group's (index, value)
 /// pairs, groups in the order of their keys.
 fn group_values(
-    judged: &[Judged],
+    judged: &[Box<Judged>],
     key_and_value: impl Fn(&Judged) -> (&Option<(String, String)>, Option<f64>),
 ) -> Vec<Vec<(usize, f64)>> {
     // Keys borrowed, not cloned: one group per string or site, but a key per unit.
