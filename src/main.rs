@@ -12,8 +12,8 @@ fn main() -> ExitCode {
 /// the per-unit summaries it replaces are freed; with an arena per thread
 /// the freed memory could not be reused by the other threads, and the peak
 /// rose by about 45 MB on 50,000 units. The shared arena's lock costs about
-/// 15 % of the time on two threads (a row's hydrometer values are still one
-/// allocation): memory is the scarcer resource on the laptops this is for.
+/// 15 % of the time on two threads; memory is the scarcer resource on the
+/// laptops this is for.
 #[cfg(all(target_os = "linux", target_env = "gnu"))]
 fn one_malloc_arena() {
     if std::env::var_os("MALLOC_ARENA_MAX").is_none() {
