@@ -200,13 +200,8 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         known_profiles: Some(store.iter().map(|p| p.id().to_string()).collect()),
         now: Some(chrono::Local::now().naive_local() + chrono::Duration::days(1)),
     };
-    let report = analyse_files(
-        &args.files,
-        store,
-        &settings,
-        &opts,
-        args.threads.map(usize::from),
-    )?;
+    let threads = threads_for(args.threads.map(usize::from));
+    let report = analyse_files(&args.files, store, &settings, &opts, Some(threads))?;
     write_report(
         &report,
         store,
@@ -214,7 +209,7 @@ pub fn run(args: FleetArgs, store: &ProfileStore) -> CmdResult {
         args.output.as_deref(),
         &args.files,
         &args.name,
-        threads_for(args.threads.map(usize::from)),
+        threads,
     )?;
     let code = if report.summary.rows_rejected > 0 {
         EXIT_REJECTED_ROWS

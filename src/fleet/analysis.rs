@@ -583,11 +583,9 @@ pub fn finish_owned_on(
     } else {
         threads.clamp(1, units.len())
     };
-    // Each unit is judged into its own slot, and its summary dropped there
-    // and then, so that the report replaces the state piece by piece rather
-    // than being built beside it.
-    // Boxed: a slot is a pointer until its unit is judged, so that the
-    // reports' memory grows as the summaries' shrinks.
+    // Each unit is judged into its own slot (a pointer until then) and its
+    // summary emptied there and then, so that the reports' memory grows as
+    // the summaries' shrinks instead of being laid out beside it.
     let mut slots: Vec<Option<Box<Judged>>> = Vec::new();
     slots.resize_with(units.len(), || None);
     let judge_run = |units: &mut [(Arc<str>, UnitSummary)], slots: &mut [Option<Box<Judged>>]| {

@@ -169,8 +169,10 @@ const PARALLEL_ITEMS: usize = 4 * BLOCK_ITEMS;
 /// its two long arrays (units, float strings) serialized on up to `threads`
 /// threads: on 50,000 units the document is 70 MB, and serializing it was a
 /// tenth of a fleet run, after everything else had finished. The fields are
-/// written in the order `FleetReport` declares them; the test compares the
-/// result with serde's on reports that have every part.
+/// written in the order `FleetReport` declares them (the report is taken
+/// apart without `..`, so a new field stops the build here until it is
+/// written); the test compares the result with serde's on reports that have
+/// every part.
 pub fn write_pretty(
     report: &FleetReport,
     w: &mut impl Write,
