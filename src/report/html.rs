@@ -690,7 +690,12 @@ fn freezing(h: &mut String, report: &FleetReport, ctx: &ReportContext) {
         let Ok(profile) = ctx.store.get(id) else {
             continue;
         };
-        let units: Vec<&UnitReport> = report.units.iter().filter(|u| u.profile == *id).collect();
+        let units: Vec<&UnitReport> = report
+            .units
+            .iter()
+            .map(|u| &**u)
+            .filter(|u| u.profile == *id)
+            .collect();
         let points: Vec<ScatterPoint> = units
             .iter()
             .filter_map(|u| {

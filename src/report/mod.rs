@@ -193,6 +193,7 @@ pub(crate) fn needing_action(report: &FleetReport) -> impl Iterator<Item = &Unit
     report
         .units
         .iter()
+        .map(|u| &**u)
         .filter(|u| u.action != Action::Serviceable)
 }
 
