@@ -12,6 +12,7 @@ pub mod correct;
 pub mod electrolyte;
 pub mod fleet;
 pub mod float;
+pub(crate) mod pool;
 pub mod profile;
 pub mod report;
 pub mod rules;

@@ -20,6 +20,7 @@ use super::{
     parse_header, read_header, read_prefix, read_records, FleetRow, IngestError, IngestOptions,
     IngestStats, Quoting, RecordCounts, RecordReader, Rejected, RowParser, MAX_LINE_BYTES,
 };
+use crate::pool::Pool;
 use std::io::{self, Read};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
@@ -70,10 +71,8 @@ struct Piece<T> {
 }
 
 /// Emptied buffers on their way back to be filled again: a chunk's bytes to
-/// the reader thread, a piece's item vector to the workers. Without them
-/// every chunk and piece was a fresh allocation of a few hundred kilobytes,
-/// and the system zeroed a new page for each 4 KiB of them: about half a
-/// gigabyte per million rows, a sixth of the run's time.
+/// the reader thread, a piece's item vector to the workers (about half a
+/// gigabyte of fresh pages per million rows without them).
 struct Buffers<T> {
     bytes: Pool<u8>,
     items: Pool<T>,
@@ -84,39 +83,6 @@ impl<T> Default for Buffers<T> {
         Buffers {
             bytes: Pool::default(),
             items: Pool::default(),
-        }
-    }
-}
-
-/// Vectors kept for reuse; no more than [`Pool::KEEP`], the most that can be
-/// in flight at once being bounded by the channels anyway.
-struct Pool<T>(Mutex<Vec<Vec<T>>>);
-
-impl<T> Default for Pool<T> {
-    fn default() -> Self {
-        Pool(Mutex::new(Vec::new()))
-    }
-}
-
-impl<T> Pool<T> {
-    const KEEP: usize = 64;
-
-    /// An empty vector, one from the pool if there is one.
-    fn take(&self) -> Vec<T> {
-        self.0
-            .lock()
-            .ok()
-            .and_then(|mut v| v.pop())
-            .unwrap_or_default()
-    }
-
-    /// Give an emptied vector back (its contents are dropped here).
-    fn put(&self, mut v: Vec<T>) {
-        v.clear();
-        if let Ok(mut pool) = self.0.lock() {
-            if pool.len() < Self::KEEP {
-                pool.push(v);
-            }
         }
     }
 }
