@@ -511,7 +511,10 @@ fn overview(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Overview
     let mut first: Option<chrono::NaiveDateTime> = None;
     let mut last: Option<chrono::NaiveDateTime> = None;
     let mut profiles: Vec<String> = Vec::new();
+    let (mut duplicate_readings, mut short_rest_readings) = (0, 0);
     for s in state.units.values() {
+        duplicate_readings += s.duplicates();
+        short_rest_readings += s.short_rest;
         if let (Some(f), Some((l, row))) = (s.first_at, s.latest()) {
             first = Some(first.map_or(f, |x| x.min(f)));
             last = Some(last.map_or(l.taken_at, |x| x.max(l.taken_at)));
@@ -532,8 +535,8 @@ fn overview(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Overview
             ]
         }),
         profiles,
-        duplicate_readings: state.units.values().map(|s| s.duplicates()).sum(),
-        short_rest_readings: state.units.values().map(|s| s.short_rest).sum(),
+        duplicate_readings,
+        short_rest_readings,
         rows_read: state.rows_read,
         rows_accepted: state.rows_accepted,
         rows_rejected: state.rejected_total,
@@ -1165,11 +1168,19 @@ type FloatResults = (
 /// reasons that concern it, go back to that unit (see [`UnitFloatFindings`]).
 fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> FloatResults {
     let mut groups: BTreeMap<(String, String, String), Vec<&UnitSummary>> = BTreeMap::new();
-    for (_, s) in state.units_by_id() {
+    // Only the units read on float, in id order (sorting them all first was
+    // a tenth of judging a large fleet that had none).
+    let mut on_float: Vec<(&Arc<str>, &UnitSummary)> = state
+        .units
+        .iter()
+        .filter(|(_, s)| {
+            s.latest()
+                .is_some_and(|(_, r)| r.after == After::Float && r.volts.is_some())
+        })
+        .collect();
+    on_float.sort_unstable_by(|a, b| a.0.cmp(b.0));
+    for (_, s) in on_float {
         let Some((_, r)) = s.latest() else { continue };
-        if r.after != After::Float || r.volts.is_none() {
-            continue;
-        }
         let key = (
             r.site.as_deref().unwrap_or("").to_string(),
             r.string.as_deref().unwrap_or(&r.unit_id).to_string(),
