@@ -488,9 +488,13 @@ fn reason(action: Action, rule: RuleId, detail: String, rules: &Rules) -> FleetR
 
 struct Judged {
     report: Box<UnitReport>,
-    peer_key: Option<(String, String)>,
-    sg_key: Option<(String, String)>,
+    peer_key: Option<GroupKey>,
+    sg_key: Option<GroupKey>,
 }
+
+/// A group of units compared with each other: (site, string, profile) of the
+/// latest row, shared with the row rather than copied.
+type GroupKey = (Option<Arc<str>>, Option<Arc<str>>, Arc<str>);
 
 /// What the report takes from the state besides the units' own judgements.
 struct Overview {
@@ -551,7 +555,7 @@ pub fn finish(state: &FleetState, store: &ProfileStore, settings: &FleetSettings
     let judged = state
         .units_by_id()
         .into_iter()
-        .filter_map(|(id, s)| judge_unit(id, s, store, settings).map(Box::new))
+        .filter_map(|(id, s)| judge_unit(id, s, store, settings))
         .collect();
     rank(overview, judged, store, settings)
 }
@@ -595,10 +599,10 @@ pub fn finish_owned_on(
     } else {
         threads.clamp(1, units.len())
     };
-    let judge_run = |units: &mut [(Arc<str>, UnitSummary)]| -> Vec<Box<Judged>> {
+    let judge_run = |units: &mut [(Arc<str>, UnitSummary)]| -> Vec<Judged> {
         let mut judged = Vec::with_capacity(units.len());
         for (id, s) in units.iter_mut() {
-            judged.extend(judge_unit(id, s, store, settings).map(Box::new));
+            judged.extend(judge_unit(id, s, store, settings));
             *s = UnitSummary::default();
         }
         judged
@@ -625,12 +629,9 @@ pub fn finish_owned_on(
 
 /// The rules across units (peers, a string's hydrometer readings, float),
 /// the final actions, the ranking and the summary.
-// Boxed on purpose: judged units are made one at a time while the summaries
-// are freed, and sorted by pointer; a flat Vec of them raised the peak by 20 MB.
-#[allow(clippy::vec_box)]
 fn rank(
     overview: Overview,
-    mut judged: Vec<Box<Judged>>,
+    mut judged: Vec<Judged>,
     store: &ProfileStore,
     settings: &FleetSettings,
 ) -> FleetReport {
@@ -741,25 +742,22 @@ fn rank(
         })
         .collect();
 
-    // Counted under borrowed names, made owned once per name.
-    let mut actions: BTreeMap<&str, usize> = BTreeMap::new();
-    let mut sites: BTreeMap<&str, BTreeMap<&str, usize>> = BTreeMap::new();
+    // Counted by (site, action) under borrowed names, then sorted into the
+    // summary's maps once per pair.
+    let mut counts: HashMap<(&str, Action), usize, rustc_hash::FxBuildHasher> = HashMap::default();
     for u in &units {
-        *actions.entry(u.action.as_str()).or_default() += 1;
-        *sites
-            .entry(u.site.as_deref().unwrap_or("(no site)"))
-            .or_default()
-            .entry(u.action.as_str())
-            .or_default() += 1;
+        let site = u.site.as_deref().unwrap_or("(no site)");
+        *counts.entry((site, u.action)).or_default() += 1;
     }
-    let owned = |m: BTreeMap<&str, usize>| -> BTreeMap<String, usize> {
-        m.into_iter().map(|(k, v)| (k.to_string(), v)).collect()
-    };
-    let by_action = owned(actions);
-    let by_site: BTreeMap<String, BTreeMap<String, usize>> = sites
-        .into_iter()
-        .map(|(k, v)| (k.to_string(), owned(v)))
-        .collect();
+    let mut by_action: BTreeMap<String, usize> = BTreeMap::new();
+    let mut by_site: BTreeMap<String, BTreeMap<String, usize>> = BTreeMap::new();
+    for ((site, action), n) in counts {
+        *by_action.entry(action.as_str().to_string()).or_default() += n;
+        by_site
+            .entry(site.to_string())
+            .or_default()
+            .insert(action.as_str().to_string(), n);
+    }
     FleetReport {
         schema: FLEET_SCHEMA,
         summary: Summary {
@@ -808,13 +806,15 @@ fn student_t_95(dof: u64) -> f64 {
 }
 
 /// Judged units with a group key and a value: each group's (index, value)
-/// pairs, groups in the order of their keys.
+/// pairs, in no particular order of groups (each group's rule touches only
+/// its own members, so the order cannot change a report).
 fn group_values(
-    judged: &[Box<Judged>],
-    key_and_value: impl Fn(&Judged) -> (&Option<(String, String)>, Option<f64>),
+    judged: &[Judged],
+    key_and_value: impl Fn(&Judged) -> (&Option<GroupKey>, Option<f64>),
 ) -> Vec<Vec<(usize, f64)>> {
     // Keys borrowed, not cloned: one group per string or site, but a key per unit.
-    let mut groups: BTreeMap<&(String, String), Vec<(usize, f64)>> = BTreeMap::new();
+    let mut groups: HashMap<&GroupKey, Vec<(usize, f64)>, rustc_hash::FxBuildHasher> =
+        HashMap::default();
     for (i, j) in judged.iter().enumerate() {
         if let (Some(k), Some(v)) = key_and_value(j) {
             groups.entry(k).or_default().push((i, v));
@@ -1076,15 +1076,10 @@ fn judge_unit(
             .filter_map(|h| Some((h.taken_at, h.soc_percent()?, h.soc_interval_percent()?)))
             .collect()
     };
-    let peer_key = ocv_cell.map(|_| {
-        let group = match (&row.site, &row.string) {
-            (Some(site), Some(st)) => format!("{site}/{st}"),
-            (Some(site), None) => site.to_string(),
-            (None, Some(st)) => format!("/{st}"),
-            (None, None) => String::new(),
-        };
-        (group, row.profile.to_string())
-    });
+    // Peers: the same string, else the same site; a unit with neither has none.
+    let peer_key = ocv_cell
+        .filter(|_| row.site.is_some() || row.string.is_some())
+        .map(|_| (row.site.clone(), row.string.clone(), row.profile.clone()));
     let mut report = empty_report(id, row, s, Action::Serviceable, reasons);
     report.soc_percent = soc;
     report.soc_interval_percent = interval;
@@ -1098,16 +1093,14 @@ fn judge_unit(
     report.sg_mean_25c = sg_mean;
     report.heat_ageing_factor = ageing.map(|a| round(a, 2));
     report.history = history;
-    let sg_key = match (&row.site, &row.string, row.cells.unwrap_or(profile.cells())) {
-        (site, Some(st), 1) => Some((
-            format!("{}/{st}", site.as_deref().unwrap_or("")),
-            row.profile.to_string(),
-        )),
+    // A string's single cells, compared by hydrometer.
+    let sg_key = match (&row.string, row.cells.unwrap_or(profile.cells())) {
+        (Some(_), 1) => Some((row.site.clone(), row.string.clone(), row.profile.clone())),
         _ => None,
     };
     Some(Judged {
         report: Box::new(report),
-        peer_key: peer_key.filter(|(g, _)| !g.is_empty()),
+        peer_key,
         sg_key,
     })
 }
@@ -1448,5 +1441,52 @@ mod student_t_tests {
                 .unwrap();
             assert_eq!(student_t_95(dof).to_bits(), exact.to_bits(), "dof {dof}");
         }
+    }
+}
+
+#[cfg(test)]
+mod peer_group_tests {
+    use super::{finish, FleetSettings, FleetState};
+    use crate::fleet::ingest::IngestOptions;
+    use crate::profile::store::ProfileStore;
+
+    /// Peers are the units of one (site, string, profile). A site named
+    /// "north/yard" without strings and the string "yard" of site "north"
+    /// are two groups, though both once joined into the text "north/yard".
+    #[test]
+    fn a_site_with_a_slash_is_not_another_sites_string() {
+        let mut csv = String::from("unit_id,taken_at,profile,site,string,volts,temp_c,rest_h\n");
+        for (i, v) in [12.80, 12.80, 12.81, 12.79, 12.50].iter().enumerate() {
+            csv.push_str(&format!(
+                "A{i},2026-01-05 10:00,agm,north/yard,,{v},25,48\n"
+            ));
+        }
+        for i in 0..4 {
+            csv.push_str(&format!(
+                "B{i},2026-01-05 10:00,agm,north,yard,12.50,25,48\n"
+            ));
+        }
+        let store = ProfileStore::builtin().unwrap();
+        let settings = FleetSettings::default();
+        let mut state = FleetState::default();
+        state
+            .ingest(
+                "peers.csv",
+                csv.as_bytes(),
+                &IngestOptions::default(),
+                &store,
+                &settings,
+            )
+            .unwrap();
+        let report = finish(&state, &store, &settings);
+        let outliers: Vec<&str> = report
+            .units
+            .iter()
+            .filter(|u| u.flags.iter().any(|f| f == "peer-outlier"))
+            .map(|u| u.unit_id.as_str())
+            .collect();
+        assert_eq!(outliers, ["A4"]);
+        // Every unit was compared within its own group of 5 or 4.
+        assert!(report.units.iter().all(|u| u.peer_z.is_some()));
     }
 }
