@@ -12,7 +12,11 @@
 //!   - `units`: number of units.
 //!   - `by_action`: action word → number of units.
 //!   - `by_site`: site (or `"(no site)"`) → action word → number of units.
-//!   - `duplicate_readings`: readings repeated exactly (counted once).
+//!   - `duplicate_readings`: readings taken at the same time as another
+//!     reading of the same unit (each repeat after the first counts one),
+//!     counted among each unit's 12 latest readings
+//!     (the history kept per unit; repeats older than that are not counted,
+//!     so the number is a floor).
 //!   - `short_rest_readings`: readings taken with less than the profile's rest.
 //!   - `period`: `[first, last]` reading time as `YYYY-MM-DD HH:MM`, or null.
 //!   - `profiles`: profile ids used, sorted.
