@@ -309,6 +309,103 @@ fn settle_refuses_two_readings() {
     assert!(r.stdout.is_empty(), "no report on refusal: {}", r.stdout);
 }
 
+/// With four readings AICc is undefined for both forms (n ≤ k + 1: Hurvich &
+/// Tsai 1989's correction divides by n − k − 1), so the text must not claim a
+/// choice by the lower AICc; the semi-log form, with fewer parameters, is taken.
+/// The text also fits 80 columns (standard output is not a terminal here).
+#[test]
+fn settle_text_says_why_a_fit_was_chosen_and_fits_80_columns() {
+    let r = run(&[
+        "settle",
+        "--reading",
+        "5m=12.95",
+        "--reading",
+        "15m=12.90",
+        "--reading",
+        "30m=12.87",
+        "--reading",
+        "60m=12.85",
+        "--after",
+        "charge",
+    ]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(!r.stdout.contains("lower AICc"), "{}", r.stdout);
+    assert!(
+        r.stdout
+            .contains("chosen for fewer parameters: AICc (-) is undefined with 4 readings"),
+        "{}",
+        r.stdout
+    );
+    let chosen: Vec<&str> = r
+        .stdout
+        .lines()
+        .filter(|l| l.ends_with("  chosen"))
+        .collect();
+    assert!(
+        chosen.len() == 1 && chosen[0].trim_start().starts_with("semi-log"),
+        "{}",
+        r.stdout
+    );
+    assert!(
+        r.stdout.lines().all(|l| l.chars().count() <= 80),
+        "{}",
+        r.stdout
+    );
+
+    // The demo series has enough readings, and its exponential fit's AICc is lower.
+    let csv = repo("demo-data/rest-series.csv");
+    let r = run(&[
+        "settle",
+        csv.to_str().unwrap(),
+        "--after",
+        "charge",
+        "--profile",
+        "agm",
+    ]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(
+        r.stdout.contains("chosen by the lower AICc"),
+        "{}",
+        r.stdout
+    );
+    assert!(
+        r.stdout.lines().all(|l| l.chars().count() <= 80),
+        "{}",
+        r.stdout
+    );
+}
+
+/// calibrate's text report keeps to 80 columns off a terminal: its long
+/// sentences (the fit, the residual SD, the tolerance) wrap under their own
+/// indent, and the tables of numbers are left as they are.
+#[test]
+fn calibrate_text_fits_80_columns() {
+    let d = tmp();
+    let input = fixture("calibrate-points.csv");
+    let r = run_in(
+        d.path(),
+        &[
+            "calibrate",
+            input.to_str().unwrap(),
+            "--id",
+            "site-x",
+            "--from",
+            "agm",
+            "-o",
+            "site-x.toml",
+        ],
+    );
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(r.stdout.contains("Tolerance written:"), "{}", r.stdout);
+    assert!(
+        r.stdout.lines().all(|l| l.chars().count() <= 80),
+        "{}",
+        r.stdout
+    );
+    // A residual row keeps its column spacing.
+    assert!(r.stdout.contains("  line    2   20.00 %"), "{}", r.stdout);
+}
+
 #[test]
 fn completions_and_man_page() {
     let r = run(&["completions", "bash"]);

@@ -172,12 +172,69 @@ pub fn wrap_hanging(lead: &str, text: &str, indent: usize, width_columns: usize)
     out
 }
 
+/// `text` with each line longer than `width_columns` wrapped at spaces; lines
+/// that fit are kept as they are, column spacing and all. A line that starts
+/// with a label padded by two or more spaces (`Verdict         not yet...`)
+/// continues under its value; any other continues two spaces in from its own
+/// indent. For reports made of lines (`settle`, `calibrate`) whose free-text
+/// lines can run long.
+pub fn wrap_long_lines(text: &str, width_columns: usize) -> String {
+    let mut out = String::with_capacity(text.len());
+    for line in text.lines() {
+        if line.chars().count() <= width_columns {
+            out.push_str(line);
+            out.push('\n');
+            continue;
+        }
+        let body = line.trim_start();
+        let indent_bytes = line.len() - body.len();
+        let lead_bytes = match body.find("  ") {
+            Some(gap) if gap > 0 => {
+                let after = &body[gap..];
+                indent_bytes + gap + (after.len() - after.trim_start().len())
+            }
+            _ => indent_bytes,
+        };
+        let (lead, rest) = line.split_at(lead_bytes);
+        let lead_columns = lead.chars().count();
+        let hang = if lead_bytes > indent_bytes {
+            lead_columns
+        } else {
+            lead_columns + 2
+        };
+        out.push_str(&wrap_hanging(lead, rest, hang, width_columns));
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     fn widths(s: &str) -> Vec<usize> {
         s.lines().map(|l| l.chars().count()).collect()
+    }
+
+    #[test]
+    fn only_lines_too_long_are_wrapped_under_their_own_indent() {
+        let text = "Curve   a   b\n  flag x: one two three four five six\nshort\n";
+        let w = wrap_long_lines(text, 16);
+        assert_eq!(
+            w,
+            "Curve   a   b\n  flag x: one\n    two three\n    four five\n    six\nshort\n"
+        );
+        assert!(widths(&w).iter().all(|&n| n <= 16), "{w}");
+        // Nothing is lost: the words are the same.
+        assert_eq!(
+            w.split_whitespace().collect::<Vec<_>>(),
+            text.split_whitespace().collect::<Vec<_>>()
+        );
+    }
+
+    #[test]
+    fn a_padded_label_keeps_its_padding_and_its_value_continues_under_it() {
+        let w = wrap_long_lines("Verdict   not yet settled today\n", 23);
+        assert_eq!(w, "Verdict   not yet\n          settled today\n");
     }
 
     #[test]

@@ -242,20 +242,52 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
                 profile.id(),
                 cells
             );
+            // The choice is by AICc only when the chosen fit's AICc is defined
+            // and lower than every other's; otherwise the semi-log model, with
+            // fewer parameters, was taken (see `settle`'s module doc).
+            let by_aicc = fit.aicc.is_finite()
+                && analysis
+                    .fits
+                    .iter()
+                    .all(|f| f.model == fit.model || fit.aicc < f.aicc);
+            let _ = writeln!(
+                s,
+                "  {:<12} {:>8}  {:<13}  {:>8}  {:>6}",
+                "model", "rested V", "95 % interval", "residual", "AICc"
+            );
             for f in &analysis.fits {
-                let _ =
-                    writeln!(
+                let aicc = if f.aicc.is_finite() {
+                    format!("{:.1}", f.aicc)
+                } else {
+                    "-".to_string()
+                };
+                let _ = writeln!(
                     s,
-                    "  {:<12} rested {:.3} V (95 %: {:.3}–{:.3})  residual {:.1} mV  AICc {:.1}{}",
+                    "  {:<12} {:>8.3}  {:<13}  {:>5.1} mV  {aicc:>6}{}",
                     f.model.to_string(),
                     f.rested_volts.0,
-                    f.rested_interval_volts.0 .0,
-                    f.rested_interval_volts.1 .0,
+                    format!(
+                        "{:.3}–{:.3}",
+                        f.rested_interval_volts.0 .0, f.rested_interval_volts.1 .0
+                    ),
                     f.residual_sd_mv,
-                    f.aicc,
-                    if f.model == fit.model { "  <- chosen (lower AICc)" } else { "" }
+                    if f.model == fit.model { "  chosen" } else { "" }
                 );
             }
+            let _ = writeln!(
+                s,
+                "  {}",
+                if by_aicc {
+                    "chosen by the lower AICc (small-sample Akaike criterion)".to_string()
+                } else if analysis.fits.iter().any(|f| !f.aicc.is_finite()) {
+                    format!(
+                        "chosen for fewer parameters: AICc (-) is undefined with {} readings",
+                        points.len()
+                    )
+                } else {
+                    "chosen for fewer parameters: no lower AICc to choose by".to_string()
+                }
+            );
             for n in &analysis.notes {
                 let _ = writeln!(s, "  note: {n}");
             }
@@ -281,8 +313,13 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
             );
             let _ = writeln!(
                 s,
-                "Settling rate   {:+.1} mV/h at the last reading (last two readings: {:+.1} mV/h); limit {} mV/h",
-                fit.rate_at_last_mv_per_h, analysis.finite_difference_rate_mv_per_h, opts.settling_limit_mv_per_h
+                "Settling rate   {:+.1} mV/h at the last reading; limit {} mV/h",
+                fit.rate_at_last_mv_per_h, opts.settling_limit_mv_per_h
+            );
+            let _ = writeln!(
+                s,
+                "                ({:+.1} mV/h between the last two readings)",
+                analysis.finite_difference_rate_mv_per_h
             );
             let verdict = if analysis.settled {
                 "settled: a rest reading now is trustworthy".to_string()
@@ -298,7 +335,7 @@ pub fn run(args: SettleArgs, store: &ProfileStore) -> CmdResult {
                 }
             };
             let _ = writeln!(s, "Verdict         {verdict}");
-            s
+            output::wrap_long_lines(&s, output::stdout_columns())
         }
     };
     output::emit(None, text.as_bytes(), &[])?;

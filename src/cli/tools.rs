@@ -457,7 +457,7 @@ pub fn calibrate(a: CalibrateArgs, store: &crate::profile::store::ProfileStore) 
         OneFormat::Text => {
             let mut s = c.report.render_text();
             let _ = writeln!(s, "wrote {}", a.output.display());
-            s
+            output::wrap_long_lines(&s, output::stdout_columns())
         }
     };
     output::emit(None, text.as_bytes(), &[])?;
