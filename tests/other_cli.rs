@@ -309,6 +309,13 @@ fn settle_refuses_two_readings() {
     assert!(r.stdout.is_empty(), "no report on refusal: {}", r.stdout);
 }
 
+/// Every line of a text report within 80 columns (standard output is not a
+/// terminal in these tests, so that is the width wrapped to).
+fn assert_fits_80_columns(text: &str) {
+    let long: Vec<&str> = text.lines().filter(|l| l.chars().count() > 80).collect();
+    assert!(long.is_empty(), "lines over 80 columns: {long:?}\n{text}");
+}
+
 /// With four readings AICc is undefined for both forms (n ≤ k + 1: Hurvich &
 /// Tsai 1989's correction divides by n − k − 1), so the text must not claim a
 /// choice by the lower AICc; the semi-log form, with fewer parameters, is taken.
@@ -346,11 +353,7 @@ fn settle_text_says_why_a_fit_was_chosen_and_fits_80_columns() {
         "{}",
         r.stdout
     );
-    assert!(
-        r.stdout.lines().all(|l| l.chars().count() <= 80),
-        "{}",
-        r.stdout
-    );
+    assert_fits_80_columns(&r.stdout);
 
     // The demo series has enough readings, and its exponential fit's AICc is lower.
     let csv = repo("demo-data/rest-series.csv");
@@ -368,11 +371,7 @@ fn settle_text_says_why_a_fit_was_chosen_and_fits_80_columns() {
         "{}",
         r.stdout
     );
-    assert!(
-        r.stdout.lines().all(|l| l.chars().count() <= 80),
-        "{}",
-        r.stdout
-    );
+    assert_fits_80_columns(&r.stdout);
 }
 
 /// calibrate's text report keeps to 80 columns off a terminal: its long
@@ -397,11 +396,7 @@ fn calibrate_text_fits_80_columns() {
     );
     assert_eq!(r.code, Some(0), "{}", r.stderr);
     assert!(r.stdout.contains("Tolerance written:"), "{}", r.stdout);
-    assert!(
-        r.stdout.lines().all(|l| l.chars().count() <= 80),
-        "{}",
-        r.stdout
-    );
+    assert_fits_80_columns(&r.stdout);
     // A residual row keeps its column spacing.
     assert!(r.stdout.contains("  line    2   20.00 %"), "{}", r.stdout);
 }
