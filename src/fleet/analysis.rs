@@ -616,7 +616,7 @@ pub fn finish_owned_on(
     // in the order their histories lie in memory, not by id: freed in id
     // order, the summaries of a file sorted by time (whose units' memory is
     // interleaved) left no allocator page empty until the end, and the peak
-    // rose by 60 MB. The order changes nothing else: judging a unit depends
+    // was 30 MB higher. The order changes nothing else: judging a unit depends
     // on its summary alone, and the judged units are sorted by id below.
     units.sort_unstable_by_key(|(_, s)| s.history.as_ptr() as usize);
     let threads = if units.len() < PARALLEL_JUDGING_UNITS {
