@@ -210,14 +210,7 @@ impl UnitSummary {
         let soc_q = soc.map(|(s, _)| quantise(s));
         let interval_q = soc.map(|(_, [lo, hi])| [quantise(lo), quantise(hi)]);
         if let (Some(s), true) = (soc_q, rested) {
-            let t = minutes_since_epoch(row.taken_at) as i128;
-            let s = s as i128;
-            self.trend_n += 1;
-            self.trend_sum_t += t;
-            self.trend_sum_tt += t * t;
-            self.trend_sum_s += s;
-            self.trend_sum_ts += t * s;
-            self.trend_sum_ss += s * s;
+            self.add_trend_point(minutes_since_epoch(row.taken_at), s.into());
         }
         if let Some(t) = row.temperature {
             let q = (t.0 * 1000.0).round() as i64;
@@ -250,6 +243,18 @@ impl UnitSummary {
         };
         self.offer_latest(&point, row);
         self.insert_history(point);
+    }
+
+    /// Add one rested reading to the trend's sums: `minutes` since the epoch,
+    /// `soc_q` its state of charge in 0.001 % units.
+    fn add_trend_point(&mut self, minutes: i64, soc_q: i64) {
+        let (t, s) = (i128::from(minutes), i128::from(soc_q));
+        self.trend_n += 1;
+        self.trend_sum_t += t;
+        self.trend_sum_tt += t * t;
+        self.trend_sum_s += s;
+        self.trend_sum_ts += t * s;
+        self.trend_sum_ss += s * s;
     }
 
     /// Keep `row` as the latest if it is greater than the one kept, by its
@@ -381,13 +386,7 @@ mod tests {
     fn trend_of(points: &[(i64, i64)]) -> UnitSummary {
         let mut s = UnitSummary::default();
         for &(t, q) in points {
-            let (t, q) = (t as i128, q as i128);
-            s.trend_n += 1;
-            s.trend_sum_t += t;
-            s.trend_sum_tt += t * t;
-            s.trend_sum_s += q;
-            s.trend_sum_ts += t * q;
-            s.trend_sum_ss += q * q;
+            s.add_trend_point(t, q);
         }
         s
     }
