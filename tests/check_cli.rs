@@ -1,7 +1,7 @@
 //! `restvolt check` driven through the real binary.
 
 mod common;
-use common::{flags, json, num, run};
+use common::{assert_fits_80_columns, flags, json, num, run};
 
 /// The `restvolt check ...` example lines of `check --help`, split into arguments.
 fn help_examples() -> Vec<Vec<String>> {
@@ -362,13 +362,7 @@ fn long_sources_and_cautions_wrap_at_80_columns_under_their_bullet() {
     let args = LONG_CASES[0];
     let r = run(args);
     assert_eq!(r.code, Some(0), "{}", r.stderr);
-    for l in r.stdout.lines() {
-        assert!(
-            l.chars().count() <= 80,
-            "{} characters: '{l}'",
-            l.chars().count()
-        );
-    }
+    assert_fits_80_columns(&r.stdout);
     let mut json_args = args.to_vec();
     json_args.extend(["--format", "json"]);
     let v = json(&json_args);
@@ -422,13 +416,7 @@ fn long_sources_and_cautions_wrap_at_80_columns_under_their_bullet() {
 fn float_check_text_wraps_at_80_columns_too() {
     let r = run(LONG_CASES[1]);
     assert_eq!(r.code, Some(0), "{}", r.stderr);
-    for l in r.stdout.lines() {
-        assert!(
-            l.chars().count() <= 80,
-            "{} characters: '{l}'",
-            l.chars().count()
-        );
-    }
+    assert_fits_80_columns(&r.stdout);
     let mut json_args = LONG_CASES[1].to_vec();
     json_args.extend(["--format", "json"]);
     let phrases = report_phrases(&json(&json_args));

@@ -1,7 +1,7 @@
 //! `profiles`, `rules`, `ventilation`, `settle` and `completions` through the real binary.
 
 mod common;
-use common::{fixture, json, num, repo, restvolt, run, run_in, tmp};
+use common::{assert_fits_80_columns, fixture, json, num, repo, restvolt, run, run_in, tmp};
 
 const SHIPPED_IDS: [&str; 7] = [
     "agm",
@@ -307,13 +307,6 @@ fn settle_refuses_two_readings() {
     assert_ne!(r.code, Some(0));
     assert!(r.stderr.contains("at least three"), "{}", r.stderr);
     assert!(r.stdout.is_empty(), "no report on refusal: {}", r.stdout);
-}
-
-/// Every line of a text report within 80 columns (standard output is not a
-/// terminal in these tests, so that is the width wrapped to).
-fn assert_fits_80_columns(text: &str) {
-    let long: Vec<&str> = text.lines().filter(|l| l.chars().count() > 80).collect();
-    assert!(long.is_empty(), "lines over 80 columns: {long:?}\n{text}");
 }
 
 /// With four readings AICc is undefined for both forms (n ≤ k + 1: Hurvich &

@@ -91,3 +91,10 @@ pub fn flags(v: &serde_json::Value) -> Vec<String> {
         .map(|f| f["code"].as_str().expect("flag code").to_string())
         .collect()
 }
+
+/// Every line of a text report within 80 columns (standard output is not a
+/// terminal in these tests, so that is the width the text is wrapped to).
+pub fn assert_fits_80_columns(text: &str) {
+    let long: Vec<&str> = text.lines().filter(|l| l.chars().count() > 80).collect();
+    assert!(long.is_empty(), "lines over 80 columns: {long:?}\n{text}");
+}
