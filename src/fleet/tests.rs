@@ -4,10 +4,12 @@
 //! same readings.
 
 use super::analysis::{
-    finish, finish_owned, finish_owned_on, FleetSettings, FleetState, PARALLEL_JUDGING_UNITS,
+    finish, finish_owned, finish_owned_on, ChunkFold, FleetSettings, FleetState,
+    PARALLEL_JUDGING_UNITS,
 };
 use super::generate::{generate, GenerateOptions};
-use super::ingest::{IngestOptions, IngestStats, Parallelism};
+use super::ingest::{ingest, IngestOptions, IngestStats, Parallelism};
+use crate::pool::Pool;
 use crate::profile::store::ProfileStore;
 use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
@@ -108,6 +110,9 @@ fn threads_and_chunks_give_the_one_thread_report() {
             include_bytes!("../../demo-data/fleet.csv").to_vec(),
         ),
         ("awkward.csv", AWKWARD.as_bytes().to_vec()),
+        // Rows of many units in every chunk: not folded by unit on the
+        // reading threads (see the test below).
+        ("shuffled.csv", shuffled(&generated(300, 3), 11)),
     ];
     for (name, text) in &inputs {
         let (state, stats) = one_pass(name, text, &store);
@@ -128,6 +133,46 @@ fn threads_and_chunks_give_the_one_thread_report() {
             }
         }
     }
+}
+
+/// The records of a CSV text in a seeded random order, after its header.
+fn shuffled(text: &[u8], seed: u64) -> Vec<u8> {
+    let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
+    split(text, 1, &mut rng).remove(0)
+}
+
+#[test]
+fn a_chunk_is_folded_by_unit_only_when_its_rows_come_in_runs() {
+    let store = ProfileStore::builtin().unwrap();
+    let settings = FleetSettings::default();
+    let rows_of = |text: &[u8]| {
+        let mut rows = Vec::new();
+        ingest(
+            "f.csv",
+            text,
+            &IngestOptions::default(),
+            &mut |r| rows.push(r),
+            &mut |r| panic!("{r}"),
+        )
+        .unwrap();
+        rows
+    };
+    let grouped = generated(40, 5);
+    let pool = Pool::default();
+    let mut ready = Vec::new();
+    let mut rows = rows_of(&grouped);
+    let n = rows.len();
+    let part = ChunkFold::of(&mut rows, &mut ready, &store, &settings, &pool);
+    assert!(rows.is_empty() && ready.is_empty());
+    assert!(part.rows.is_empty() && part.late.is_empty());
+    assert_eq!(part.units.len(), 40);
+    let folded: u64 = part.units.iter().map(|(_, s)| s.readings).sum();
+    assert_eq!(folded, n as u64);
+
+    let mut rows = rows_of(&shuffled(&grouped, 2));
+    let part = ChunkFold::of(&mut rows, &mut ready, &store, &settings, &pool);
+    assert!(part.units.is_empty());
+    assert_eq!(part.rows.len(), n);
 }
 
 #[test]

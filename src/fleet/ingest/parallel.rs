@@ -2,10 +2,11 @@
 //!
 //! A reader thread cuts the input into chunks of about [`CHUNK_BYTES`] at
 //! record boundaries; worker threads parse the chunks with the same row
-//! parser as the one-thread path and map each accepted row (the mapping is
-//! where a fleet analysis spends its time: the state of charge); the calling
-//! thread receives the pieces in whatever order they finish and hands them
-//! on. That order differs from the file's, so this is for consumers whose
+//! parser as the one-thread path and fold each chunk's accepted rows into
+//! one result (a fleet analysis works out every row's state of charge and
+//! folds the chunk into summaries of its units); the calling thread
+//! receives the results in whatever order they finish and hands them on.
+//! That order differs from the file's, so this is for consumers whose
 //! result does not depend on order, as the fleet summaries do not (see
 //! [`crate::fleet::summary`]).
 //!
@@ -38,9 +39,8 @@ pub struct Parallelism {
     pub chunk_bytes: usize,
 }
 
-/// Workers by default at most: one thread folds every row into the
-/// summaries, at about a fifth of a worker's cost per row, so more workers
-/// than this only wait for it (and hold more chunks in memory).
+/// Workers by default at most: one thread combines the workers' results,
+/// and more workers than this mostly hold more chunks in memory.
 pub const MAX_DEFAULT_THREADS: usize = 8;
 
 impl Default for Parallelism {
@@ -64,27 +64,10 @@ struct Chunk {
 
 /// What a worker made of one chunk.
 struct Piece<T> {
-    items: Vec<T>,
+    folded: T,
     rejects: Vec<Rejected>,
     counts: RecordCounts,
     bytes: u64,
-}
-
-/// Emptied buffers on their way back to be filled again: a chunk's bytes to
-/// the reader thread, a piece's item vector to the workers (about half a
-/// gigabyte of fresh pages per million rows without them).
-struct Buffers<T> {
-    bytes: Pool<u8>,
-    items: Pool<T>,
-}
-
-impl<T> Default for Buffers<T> {
-    fn default() -> Self {
-        Buffers {
-            bytes: Pool::default(),
-            items: Pool::default(),
-        }
-    }
 }
 
 /// An error and the line of the chunk it arose in, so that the earliest one
@@ -119,19 +102,21 @@ fn count_line_ends(bytes: &[u8]) -> u64 {
     memchr::memchr_iter(b'\n', bytes).count() as u64
 }
 
-/// Read one input on `how.threads` worker threads. Accepted rows go through
-/// `map` on the workers and then to `sink` on the calling thread, rejected
+/// Read one input on `how.threads` worker threads. Each chunk's accepted
+/// rows go to `fold` on a worker, which takes them out of the vector (its
+/// second argument is scratch space of the worker's own, kept between
+/// chunks); what it returns goes to `sink` on the calling thread, rejected
 /// rows to `reject`, both in no particular order; `progress` is told the
 /// bytes read so far. The statistics and, for inputs that cannot be read to
 /// the end, the error are those of [`super::ingest`] (rows before the error
 /// may differ: more of the input will have been read).
 #[allow(clippy::too_many_arguments)]
-pub fn ingest_parallel<R, T, M>(
+pub fn ingest_parallel<R, T, W, F>(
     name: &str,
     reader: R,
     opts: &IngestOptions,
     how: Parallelism,
-    map: &M,
+    fold: &F,
     sink: &mut dyn FnMut(T),
     reject: &mut dyn FnMut(Rejected),
     progress: &mut dyn FnMut(u64),
@@ -139,7 +124,8 @@ pub fn ingest_parallel<R, T, M>(
 where
     R: Read + Send,
     T: Send,
-    M: Fn(FleetRow) -> T + Sync,
+    W: Default,
+    F: Fn(&mut Vec<FleetRow>, &mut W) -> T + Sync,
 {
     let mut reader = reader;
     let prefix = read_prefix(name, &mut reader, opts)?;
@@ -150,13 +136,23 @@ where
     let Some(header_end) = cut_point_first(body, delimiter) else {
         let mut head = io::Cursor::new(prefix.bytes);
         head.set_position(prefix.bom as u64);
-        return super::ingest(
+        let (mut rows, mut scratch) = (Vec::new(), W::default());
+        let stats = super::ingest(
             name,
             head.chain(reader),
             opts,
-            &mut |row| sink(map(row)),
+            &mut |row| {
+                rows.push(row);
+                if rows.len() >= ONE_THREAD_BATCH_ROWS {
+                    sink(fold(&mut rows, &mut scratch));
+                }
+            },
             reject,
         );
+        if !rows.is_empty() {
+            sink(fold(&mut rows, &mut scratch));
+        }
+        return stats;
     };
     let mut rdr = RecordReader::new(&body[..header_end], delimiter);
     let (header_line, header) = read_header(name, &mut rdr)?;
@@ -173,12 +169,12 @@ where
     let (piece_tx, piece_rx) = sync_channel::<Result<Piece<T>, Failure>>(threads * 2);
     let mut counts = RecordCounts::default();
     let mut first_failure: Option<Failure> = None;
-    let buffers = Buffers::default();
+    let buffers = Pool::default();
 
     std::thread::scope(|scope| {
         {
             let piece_tx = piece_tx.clone();
-            let (stop, buffers) = (&stop, &buffers.bytes);
+            let (stop, buffers) = (&stop, &buffers);
             scope.spawn(move || {
                 if let Err(f) = cut_chunks(
                     name,
@@ -199,15 +195,14 @@ where
             let (chunk_rx, piece_tx) = (&chunk_rx, piece_tx.clone());
             let mut parser = parser.clone();
             let (stop, buffers) = (&stop, &buffers);
-            scope.spawn(move || work(name, chunk_rx, &piece_tx, &mut parser, map, stop, buffers));
+            scope.spawn(move || work(name, chunk_rx, &piece_tx, &mut parser, fold, stop, buffers));
         }
         drop(piece_tx);
         let mut done = 0u64;
         for piece in piece_rx {
             match piece {
-                Ok(mut p) => {
-                    p.items.drain(..).for_each(&mut *sink);
-                    buffers.items.put(p.items);
+                Ok(p) => {
+                    sink(p.folded);
                     p.rejects.into_iter().for_each(&mut *reject);
                     counts.add(p.counts);
                     done += p.bytes;
@@ -337,23 +332,29 @@ fn cut_chunks<R: Read>(
     Ok(())
 }
 
+/// Rows per call of the fold when the input is read on one thread after all
+/// (a header that does not end in the first block read).
+const ONE_THREAD_BATCH_ROWS: usize = 1024;
+
 /// A worker: parse chunks until there are none.
-fn work<T, M>(
+fn work<T, W, F>(
     name: &str,
     chunks: &Mutex<Receiver<Chunk>>,
     out: &SyncSender<Result<Piece<T>, Failure>>,
     parser: &mut RowParser<'_>,
-    map: &M,
+    fold: &F,
     stop: &AtomicBool,
-    buffers: &Buffers<T>,
+    buffers: &Pool<u8>,
 ) where
-    M: Fn(FleetRow) -> T,
+    W: Default,
+    F: Fn(&mut Vec<FleetRow>, &mut W) -> T,
 {
-    // A chunk's rows are all parsed before any is mapped: parsing and the
-    // mapping (the state of charge) are each more code than the instruction
+    // A chunk's rows are all parsed before any is folded: parsing and the
+    // fold (the state of charge) are each more code than the instruction
     // cache holds with the other, and row by row each evicted the other's;
     // phase by phase the misses fell fourfold (cachegrind, 200,000 rows).
     let mut rows: Vec<FleetRow> = Vec::new();
+    let mut scratch = W::default();
     loop {
         let next = match chunks.lock() {
             Ok(rx) => rx.recv(),
@@ -363,32 +364,31 @@ fn work<T, M>(
         if stop.load(Ordering::Relaxed) {
             continue;
         }
-        let mut items = buffers.items.take();
-        // About 100 bytes a record is typical; the guess only saves regrowth.
-        items.reserve(chunk.bytes.len() / 100);
-        let mut piece = Piece {
-            items,
-            rejects: Vec::new(),
-            counts: RecordCounts::default(),
-            bytes: chunk.bytes.len() as u64,
-        };
+        let (mut rejects, mut counts) = (Vec::new(), RecordCounts::default());
         let mut rdr = RecordReader::new(&chunk.bytes[..], parser.delimiter);
         let result = read_records(
             name,
             &mut rdr,
             parser,
             chunk.first_line - 1,
-            &mut piece.counts,
+            &mut counts,
             &mut |row| rows.push(row),
-            &mut |r| piece.rejects.push(r),
+            &mut |r| rejects.push(r),
         );
-        piece.items.extend(rows.drain(..).map(map));
         drop(rdr);
         let sent = match result {
-            Ok(()) => out.send(Ok(piece)),
-            Err(e) => out.send(Err((chunk.first_line, e))),
+            Ok(()) => out.send(Ok(Piece {
+                folded: fold(&mut rows, &mut scratch),
+                rejects,
+                counts,
+                bytes: chunk.bytes.len() as u64,
+            })),
+            Err(e) => {
+                rows.clear();
+                out.send(Err((chunk.first_line, e)))
+            }
         };
-        buffers.bytes.put(chunk.bytes);
+        buffers.put(chunk.bytes);
         if sent.is_err() {
             return;
         }
