@@ -63,8 +63,10 @@
 //!
 //! Unknown numbers are `null`, never `NaN`.
 
+mod unit;
+
 use super::{FleetFormat, ReportContext};
-use crate::fleet::analysis::FleetReport;
+use crate::fleet::analysis::{FleetReport, UnitReport};
 use serde::Serialize;
 use std::io::Write;
 use std::sync::mpsc::sync_channel;
@@ -306,17 +308,36 @@ impl serde_json::ser::Formatter for NestedPretty {
     }
 }
 
+/// An item of one of the report's two long arrays, written as serde writes
+/// it one level inside the array.
+trait ArrayItem: Sync {
+    fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()>;
+}
+
+impl ArrayItem for Box<UnitReport> {
+    /// By hand (see [`unit`]): the units are nearly the whole document.
+    fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()> {
+        unit::write_unit(out, self)
+    }
+}
+
+impl ArrayItem for crate::float::StringFloatAnalysis {
+    fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()> {
+        write_nested(out, self, 2)
+    }
+}
+
 /// One block of array items, as serde writes them one level inside the
 /// report's array: each on its own lines, separated by commas.
-fn block_bytes<T: Serialize>(items: &[T], first: bool) -> std::io::Result<Vec<u8>> {
-    let mut out = Vec::with_capacity(items.len() * 1024);
+fn block_bytes<T: ArrayItem>(items: &[T], first: bool) -> std::io::Result<Vec<u8>> {
+    let mut out = Vec::with_capacity(items.len() * 1536);
     for (i, item) in items.iter().enumerate() {
         out.extend_from_slice(if first && i == 0 {
             b"\n    "
         } else {
             b",\n    "
         });
-        write_nested(&mut out, item, 2)?;
+        item.write_item(&mut out)?;
     }
     Ok(out)
 }
@@ -325,7 +346,7 @@ fn block_bytes<T: Serialize>(items: &[T], first: bool) -> std::io::Result<Vec<u8
 /// to the threads in turn; each thread sends its blocks, in its own order,
 /// down a channel of its own that holds two, and they are written in block
 /// order, so that at most a few blocks wait in memory.
-fn write_array<T: Serialize + Sync>(
+fn write_array<T: ArrayItem>(
     w: &mut impl Write,
     items: &[T],
     threads: usize,
