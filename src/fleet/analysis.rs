@@ -614,6 +614,23 @@ struct Judged {
     report: Box<UnitReport>,
     peer_key: Option<GroupKey>,
     sg_key: Option<GroupKey>,
+    /// The latest reading was on float (its float check's findings join it).
+    on_float: bool,
+}
+
+/// Put a report's reasons in order of urgency (stably: a reason added later
+/// stays after the earlier ones of the same urgency), sort and dedup its
+/// flags, and take the most urgent reason's action. Done once as a unit is
+/// judged and again for the few that the rules across units add to.
+fn settle(report: &mut UnitReport) {
+    report.reasons.sort_by_key(|r| r.action);
+    report.action = report
+        .reasons
+        .first()
+        .map(|r| r.action)
+        .unwrap_or(Action::Serviceable);
+    report.flags.sort();
+    report.flags.dedup();
 }
 
 /// A group of units compared with each other: (site, string, profile) of the
@@ -734,7 +751,7 @@ pub fn finish_owned_on(
         }
         judged
     };
-    let mut judged = if threads == 1 {
+    let judged = if threads == 1 {
         judge_run(&mut units)
     } else {
         let per = units.len().div_ceil(threads);
@@ -749,8 +766,6 @@ pub fn finish_owned_on(
         })
     };
     drop(units);
-    // Ids are unique (they are the map's keys): the unstable sort is exact.
-    judged.sort_unstable_by(|a, b| a.report.unit_id.cmp(&b.report.unit_id));
     rank(overview, judged, store, settings)
 }
 
@@ -763,6 +778,8 @@ fn rank(
     settings: &FleetSettings,
 ) -> FleetReport {
     let rules = &settings.rules;
+    // Reports the rules below add a reason to, to be settled again.
+    let mut touched: Vec<usize> = Vec::new();
     // Peers: same string (else same site) and profile, rested latest readings.
     let groups = group_values(&judged, |j| (&j.peer_key, j.report.ocv_per_cell_25c_volts));
     for members in &groups {
@@ -783,6 +800,7 @@ fn rank(
             r.peer_deviation_mv = Some(round(delta_mv, 1));
             if z.abs() > rules.get(RuleId::PeerZ) && delta_mv.abs() >= rules.get(RuleId::PeerMinMv)
             {
+                touched.push(*i);
                 r.flags.push("peer-outlier".into());
                 r.reasons.push(reason(
                     Action::CapacityTest,
@@ -804,10 +822,11 @@ fn rank(
         if members.len() < 3 {
             continue;
         }
-        let mean = members.iter().map(|m| m.1).sum::<f64>() / members.len() as f64;
+        let mean = order_free_mean(members.iter().map(|m| m.1).collect());
         let limit = rules.get(RuleId::SgCellBelowMean);
         for (i, sg) in members {
             if mean - sg > limit + 1e-9 {
+                touched.push(*i);
                 let r = &mut judged[*i].report;
                 let allowed = store
                     .get(&r.profile)
@@ -831,39 +850,51 @@ fn rank(
         mut float_findings,
         ..
     } = overview;
-    for j in &mut judged {
-        if let Some(f) = float_findings.remove(&j.report.unit_id) {
-            j.report.flags.extend(f.flags);
-            j.report.reasons.extend(f.reasons);
+    if !float_findings.is_empty() {
+        for (i, j) in judged.iter_mut().enumerate() {
+            if !j.on_float {
+                continue;
+            }
+            if let Some(f) = float_findings.remove(&j.report.unit_id) {
+                j.report.flags.extend(f.flags);
+                j.report.reasons.extend(f.reasons);
+                touched.push(i);
+            }
         }
-        j.report.reasons.sort_by_key(|r| r.action);
-        j.report.action = j
-            .report
-            .reasons
-            .first()
-            .map(|r| r.action)
-            .unwrap_or(Action::Serviceable);
-        j.report.flags.sort();
-        j.report.flags.dedup();
+    }
+    for i in touched {
+        if let Some(j) = judged.get_mut(i) {
+            settle(&mut j.report);
+        }
     }
     // Most urgent action first, then lowest state of charge (none last), then
-    // unit id. The units come in id order and the sort is stable, so the id
-    // needs no comparing; the keys are worked out once and only the boxes'
-    // pointers move.
-    debug_assert!(judged
-        .windows(2)
-        .all(|w| w[0].report.unit_id < w[1].report.unit_id));
-    judged.sort_by_cached_key(|j| {
-        (
-            j.report.action,
-            total_order_key(j.report.soc_percent.unwrap_or(101.0)),
-        )
-    });
-    let units: Vec<Box<UnitReport>> = judged
-        .into_iter()
+    // unit id. The keys are worked out once, ids compared only on a tie, and
+    // only the boxes' pointers move. Ids are unique (they are the state's
+    // keys), so the unstable sort is exact.
+    let mut order: Vec<(Action, i64, usize)> = judged
+        .iter()
         .enumerate()
         .map(|(i, j)| {
-            let mut report = j.report;
+            (
+                j.report.action,
+                total_order_key(j.report.soc_percent.unwrap_or(101.0)),
+                i,
+            )
+        })
+        .collect();
+    order.sort_unstable_by(|a, b| {
+        (a.0, a.1).cmp(&(b.0, b.1)).then_with(|| {
+            let id = |k: &(Action, i64, usize)| judged.get(k.2).map(|j| &j.report.unit_id);
+            id(a).cmp(&id(b))
+        })
+    });
+    let mut slots: Vec<Option<Box<UnitReport>>> =
+        judged.into_iter().map(|j| Some(j.report)).collect();
+    let units: Vec<Box<UnitReport>> = order
+        .iter()
+        .filter_map(|&(_, _, i)| slots.get_mut(i).and_then(Option::take))
+        .enumerate()
+        .map(|(i, mut report)| {
             report.rank = i + 1;
             report
         })
@@ -950,6 +981,14 @@ fn group_values(
     groups.into_values().collect()
 }
 
+/// The mean of `values`, summed in ascending order, so that it does not
+/// depend on the order the units were judged in (floating-point addition is
+/// not associative, and the judging order follows memory, not ids).
+fn order_free_mean(mut values: Vec<f64>) -> f64 {
+    values.sort_by(f64::total_cmp);
+    values.iter().sum::<f64>() / values.len() as f64
+}
+
 fn median_sorted(v: &[f64]) -> f64 {
     let n = v.len();
     if n == 0 {
@@ -980,22 +1019,25 @@ fn judge_unit(
     let profile = match store.get(&row.profile) {
         Ok(p) => p,
         Err(e) => {
+            let mut report = Box::new(empty_report(
+                id,
+                row,
+                s,
+                Action::Remeasure,
+                vec![FleetReason {
+                    rule: "unknown-profile".into(),
+                    action: Action::Remeasure,
+                    detail: e.to_string(),
+                    source: "restvolt profile store".into(),
+                }],
+            ));
+            settle(&mut report);
             return Some(Judged {
-                report: Box::new(empty_report(
-                    id,
-                    row,
-                    s,
-                    Action::Remeasure,
-                    vec![FleetReason {
-                        rule: "unknown-profile".into(),
-                        action: Action::Remeasure,
-                        detail: e.to_string(),
-                        source: "restvolt profile store".into(),
-                    }],
-                )),
+                report,
                 peer_key: None,
                 sg_key: None,
-            })
+                on_float: row.after == After::Float,
+            });
         }
     };
     let coldest = [
@@ -1225,10 +1267,12 @@ fn judge_unit(
         (Some(_), 1) => Some((row.site.clone(), row.string.clone(), row.profile.clone())),
         _ => None,
     };
+    settle(&mut report);
     Some(Judged {
         report: Box::new(report),
         peer_key,
         sg_key,
+        on_float: row.after == After::Float,
     })
 }
 
@@ -1519,8 +1563,36 @@ fn earlier_visits(
 }
 
 #[cfg(test)]
-mod student_t_tests {
-    use super::{student_t_95, total_order_key};
+mod number_tests {
+    use super::{order_free_mean, student_t_95, total_order_key};
+
+    #[test]
+    fn a_group_mean_does_not_depend_on_the_order_of_its_members() {
+        // Values whose plain left-to-right sum differs by order (from
+        // memory: floating-point addition rounds at each step).
+        let values = [1.197, 1.101, 0.1, 1e16, 1.25, -1e16, 0.3];
+        let plain = |v: &[f64]| v.iter().sum::<f64>();
+        let mut reversed = values;
+        reversed.reverse();
+        assert_ne!(
+            plain(&values),
+            plain(&reversed),
+            "the example must be order-sensitive"
+        );
+        let want = order_free_mean(values.to_vec());
+        let mut v = values.to_vec();
+        for k in 0..values.len() {
+            v.rotate_left(1);
+            assert_eq!(
+                order_free_mean(v.clone()).to_bits(),
+                want.to_bits(),
+                "rotation {k}"
+            );
+        }
+        assert_eq!(order_free_mean(reversed.to_vec()).to_bits(), want.to_bits());
+        // And it is the mean: exact on values that sum exactly.
+        assert_eq!(order_free_mean(vec![1.25, 1.0, 1.5, 1.25]), 1.25);
+    }
 
     #[test]
     fn the_sort_key_orders_as_total_cmp() {
