@@ -868,31 +868,33 @@ fn rank(
         }
     }
     // Most urgent action first, then lowest state of charge (none last), then
-    // unit id. The keys are worked out once, ids compared only on a tie, and
-    // only the boxes' pointers move. Ids are unique (they are the state's
-    // keys), so the unstable sort is exact.
-    let mut order: Vec<(Action, i64, usize)> = judged
+    // unit id. The keys are worked out once, with the id's first 16 bytes,
+    // so that only the pointers move and whole ids are compared only where
+    // those tie. Ids are unique (they are the state's keys), so the unstable
+    // sort is exact.
+    let mut order: Vec<RankKey> = judged
         .iter()
         .enumerate()
-        .map(|(i, j)| {
-            (
-                j.report.action,
-                total_order_key(j.report.soc_percent.unwrap_or(101.0)),
-                i,
-            )
+        .map(|(i, j)| RankKey {
+            action: j.report.action,
+            soc: total_order_key(j.report.soc_percent.unwrap_or(101.0)),
+            id_prefix: id_prefix(&j.report.unit_id),
+            index: i,
         })
         .collect();
     order.sort_unstable_by(|a, b| {
-        (a.0, a.1).cmp(&(b.0, b.1)).then_with(|| {
-            let id = |k: &(Action, i64, usize)| judged.get(k.2).map(|j| &j.report.unit_id);
-            id(a).cmp(&id(b))
-        })
+        (a.action, a.soc, a.id_prefix)
+            .cmp(&(b.action, b.soc, b.id_prefix))
+            .then_with(|| {
+                let id = |k: &RankKey| judged.get(k.index).map(|j| &j.report.unit_id);
+                id(a).cmp(&id(b))
+            })
     });
     let mut slots: Vec<Option<Box<UnitReport>>> =
         judged.into_iter().map(|j| Some(j.report)).collect();
     let units: Vec<Box<UnitReport>> = order
         .iter()
-        .filter_map(|&(_, _, i)| slots.get_mut(i).and_then(Option::take))
+        .filter_map(|k| slots.get_mut(k.index).and_then(Option::take))
         .enumerate()
         .map(|(i, mut report)| {
             report.rank = i + 1;
@@ -935,6 +937,24 @@ fn rank(
         rejected: overview.rejected,
         notices: overview.notices,
     }
+}
+
+/// A unit's place in the ranking, and where its report is.
+struct RankKey {
+    action: Action,
+    soc: i64,
+    id_prefix: u128,
+    index: usize,
+}
+
+/// The first 16 bytes of an id, padded with zeros, as a number that orders
+/// as the ids do wherever two prefixes differ (a shorter id's padding sorts
+/// first, as the shorter string does); equal prefixes need the whole ids.
+fn id_prefix(id: &str) -> u128 {
+    let mut b = [0u8; 16];
+    let n = id.len().min(16);
+    b[..n].copy_from_slice(&id.as_bytes()[..n]);
+    u128::from_be_bytes(b)
 }
 
 /// An integer that orders as `f64::total_cmp` orders `x` (the same bit
@@ -1564,7 +1584,40 @@ fn earlier_visits(
 
 #[cfg(test)]
 mod number_tests {
-    use super::{order_free_mean, student_t_95, total_order_key};
+    use super::{id_prefix, order_free_mean, student_t_95, total_order_key};
+
+    #[test]
+    fn id_prefixes_order_as_the_ids_where_they_differ() {
+        let ids = [
+            "",
+            "A",
+            "A\0",
+            "AB",
+            "B",
+            "FD-C1001-1",
+            "FD-C1001-10",
+            "FD-C1001-2",
+            "sixteen-bytes-id",
+            "sixteen-bytes-id-and-more",
+            "sixteen-bytes-ie",
+            "é",
+            "ü-1",
+        ];
+        for a in ids {
+            for b in ids {
+                let (pa, pb) = (id_prefix(a), id_prefix(b));
+                if pa != pb {
+                    assert_eq!(pa.cmp(&pb), a.cmp(b), "{a:?} {b:?}");
+                }
+            }
+        }
+        // Equal prefixes are left to the whole ids.
+        assert_eq!(id_prefix("A"), id_prefix("A\0"));
+        assert_eq!(
+            id_prefix("sixteen-bytes-id"),
+            id_prefix("sixteen-bytes-id-and-more")
+        );
+    }
 
     #[test]
     fn a_group_mean_does_not_depend_on_the_order_of_its_members() {
