@@ -663,7 +663,9 @@ fn overview(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Overview
     let mut last: Option<chrono::NaiveDateTime> = None;
     let mut profiles: Vec<String> = Vec::new();
     let (mut duplicate_readings, mut short_rest_readings) = (0, 0);
-    for s in state.units.values() {
+    // The units read on float, for the float checks: found in the same pass.
+    let mut on_float: Vec<(&Arc<str>, &UnitSummary)> = Vec::new();
+    for (id, s) in &state.units {
         duplicate_readings += s.duplicates();
         short_rest_readings += s.short_rest;
         if let (Some(f), Some((l, row))) = (s.first_at, s.latest()) {
@@ -672,10 +674,13 @@ fn overview(state: &FleetState, store: &ProfileStore, rules: &Rules) -> Overview
             if !profiles.iter().any(|p| **p == *row.profile) {
                 profiles.push(row.profile.to_string());
             }
+            if row.after == After::Float && row.volts.is_some() {
+                on_float.push((id, s));
+            }
         }
     }
     profiles.sort();
-    let (float_strings, float_findings) = float_strings(state, store, rules);
+    let (float_strings, float_findings) = float_strings(on_float, store, rules);
     Overview {
         float_strings,
         float_findings,
@@ -884,16 +889,32 @@ fn rank(
     // so that only the pointers move and whole ids are compared only where
     // those tie. Ids are unique (they are the state's keys), so the unstable
     // sort is exact.
+    // The same pass counts units by (site, action), under borrowed names,
+    // sorted into the summary's maps once per pair.
+    let mut counts: HashMap<(&str, Action), usize, rustc_hash::FxBuildHasher> = HashMap::default();
     let mut order: Vec<RankKey> = judged
         .iter()
         .enumerate()
-        .map(|(i, j)| RankKey {
-            action: j.report.action,
-            soc: total_order_key(j.report.soc_percent.unwrap_or(101.0)),
-            id_prefix: id_prefix(&j.report.unit_id),
-            index: i,
+        .map(|(i, j)| {
+            let site = j.report.site.as_deref().unwrap_or("(no site)");
+            *counts.entry((site, j.report.action)).or_default() += 1;
+            RankKey {
+                action: j.report.action,
+                soc: total_order_key(j.report.soc_percent.unwrap_or(101.0)),
+                id_prefix: id_prefix(&j.report.unit_id),
+                index: i,
+            }
         })
         .collect();
+    let mut by_action: BTreeMap<String, usize> = BTreeMap::new();
+    let mut by_site: BTreeMap<String, BTreeMap<String, usize>> = BTreeMap::new();
+    for ((site, action), n) in counts {
+        *by_action.entry(action.as_str().to_string()).or_default() += n;
+        by_site
+            .entry(site.to_string())
+            .or_default()
+            .insert(action.as_str().to_string(), n);
+    }
     order.sort_unstable_by(|a, b| {
         (a.action, a.soc, a.id_prefix)
             .cmp(&(b.action, b.soc, b.id_prefix))
@@ -914,22 +935,6 @@ fn rank(
         })
         .collect();
 
-    // Counted by (site, action) under borrowed names, then sorted into the
-    // summary's maps once per pair.
-    let mut counts: HashMap<(&str, Action), usize, rustc_hash::FxBuildHasher> = HashMap::default();
-    for u in &units {
-        let site = u.site.as_deref().unwrap_or("(no site)");
-        *counts.entry((site, u.action)).or_default() += 1;
-    }
-    let mut by_action: BTreeMap<String, usize> = BTreeMap::new();
-    let mut by_site: BTreeMap<String, BTreeMap<String, usize>> = BTreeMap::new();
-    for ((site, action), n) in counts {
-        *by_action.entry(action.as_str().to_string()).or_default() += n;
-        by_site
-            .entry(site.to_string())
-            .or_default()
-            .insert(action.as_str().to_string(), n);
-    }
     FleetReport {
         schema: FLEET_SCHEMA,
         summary: Summary {
@@ -1359,21 +1364,18 @@ type FloatResults = (
     BTreeMap<String, UnitFloatFindings>,
 );
 
-/// Group units whose latest reading is on float by (site, string, profile) and
-/// run the float checks on each group. Each unit's own check, and the string's
-/// reasons that concern it, go back to that unit (see [`UnitFloatFindings`]).
-fn float_strings(state: &FleetState, store: &ProfileStore, rules: &Rules) -> FloatResults {
+/// Group the units `on_float` (those whose latest reading is a float
+/// voltage) by (site, string, profile) and run the float checks on each
+/// group. Each unit's own check, and the string's reasons that concern it,
+/// go back to that unit (see [`UnitFloatFindings`]).
+fn float_strings(
+    mut on_float: Vec<(&Arc<str>, &UnitSummary)>,
+    store: &ProfileStore,
+    rules: &Rules,
+) -> FloatResults {
     let mut groups: BTreeMap<(String, String, String), Vec<&UnitSummary>> = BTreeMap::new();
-    // Only the units read on float, in id order (sorting them all first was
-    // a tenth of judging a large fleet that had none).
-    let mut on_float: Vec<(&Arc<str>, &UnitSummary)> = state
-        .units
-        .iter()
-        .filter(|(_, s)| {
-            s.latest()
-                .is_some_and(|(_, r)| r.after == After::Float && r.volts.is_some())
-        })
-        .collect();
+    // In id order (only these: sorting all units first was a tenth of
+    // judging a large fleet that had none).
     on_float.sort_unstable_by(|a, b| a.0.cmp(b.0));
     for (_, s) in on_float {
         let Some((_, r)) = s.latest() else { continue };
