@@ -490,6 +490,17 @@ pub struct FleetReason {
     pub source: String,
 }
 
+impl From<Reason> for FleetReason {
+    fn from(r: Reason) -> FleetReason {
+        FleetReason {
+            rule: r.rule,
+            action: r.action,
+            detail: r.detail,
+            source: r.source,
+        }
+    }
+}
+
 impl From<&Reason> for FleetReason {
     fn from(r: &Reason) -> FleetReason {
         FleetReason {
@@ -1130,9 +1141,8 @@ fn judge_unit(
                 for f in &a.flags {
                     flags.push(f.code.as_str().to_string());
                 }
-                for r in &a.reasons {
-                    reasons.push(r.into());
-                }
+                // Moved, not copied: the assessment is done with.
+                reasons.extend(a.reasons.into_iter().map(FleetReason::from));
             }
             Err(e) => {
                 flags.push("unusable-reading".into());
@@ -1335,7 +1345,7 @@ fn empty_report(
         reasons,
         sg_mean_25c: None,
         readings: s.readings,
-        latest_at: row.taken_at.format("%Y-%m-%d %H:%M").to_string(),
+        latest_at: minute_text(row.taken_at),
         trend_percent_per_30_days: None,
         trend_readings: s.trend_n,
         days_below_recharge: None,
@@ -1348,6 +1358,23 @@ fn empty_report(
         history: Vec::new(),
         latest_temperature: row.temperature.map(|t| t.0),
     }
+}
+
+/// `t` as `YYYY-MM-DD HH:MM`, as chrono's `format("%Y-%m-%d %H:%M")` writes
+/// it (tested) without parsing the format for each of a fleet's units.
+fn minute_text(t: chrono::NaiveDateTime) -> String {
+    use chrono::{Datelike, Timelike};
+    if !(0..=9999).contains(&t.year()) {
+        return t.format("%Y-%m-%d %H:%M").to_string();
+    }
+    format!(
+        "{:04}-{:02}-{:02} {:02}:{:02}",
+        t.year(),
+        t.month(),
+        t.day(),
+        t.hour(),
+        t.minute()
+    )
 }
 
 /// What the float checks found for one unit whose latest reading is on float:
@@ -1599,6 +1626,34 @@ fn earlier_visits(
 #[cfg(test)]
 mod number_tests {
     use super::{id_prefix, order_free_mean, student_t_95, total_order_key};
+
+    #[test]
+    fn minute_text_is_chronos_format() {
+        use chrono::NaiveDate;
+        let days = [
+            (1, 1, 1),
+            (999, 12, 31),
+            (1999, 12, 31),
+            (2000, 2, 29),
+            (2024, 1, 8),
+            (2026, 12, 1),
+            (9999, 12, 31),
+            (10_000, 1, 1),
+            (-1, 6, 15),
+        ];
+        for (y, m, d) in days {
+            for (h, min) in [(0, 0), (9, 5), (23, 59)] {
+                let t = NaiveDate::from_ymd_opt(y, m, d)
+                    .and_then(|d| d.and_hms_opt(h, min, 59))
+                    .unwrap();
+                assert_eq!(
+                    super::minute_text(t),
+                    t.format("%Y-%m-%d %H:%M").to_string(),
+                    "{t}"
+                );
+            }
+        }
+    }
 
     #[test]
     fn id_prefixes_order_as_the_ids_where_they_differ() {
