@@ -175,6 +175,44 @@ fn a_chunk_is_folded_by_unit_only_when_its_rows_come_in_runs() {
     assert_eq!(part.rows.len(), n);
 }
 
+/// Rows the reader accepts but their profile cannot use (an SG on a
+/// valve-regulated unit) are rejects however the chunk is folded, on any
+/// number of threads: rows read = accepted + rejected, and the report is the
+/// one-thread report.
+#[test]
+fn rows_a_profile_cannot_use_are_rejected_in_folded_chunks_too() {
+    let store = ProfileStore::builtin().unwrap();
+    let mut csv = String::from("unit_id,taken_at,profile,site,string,volts,sg,temp_c,rest_h\n");
+    for u in 0..40 {
+        for d in 1..=9 {
+            // Every ninth reading of every fifth unit has an SG on an AGM unit.
+            let sg = if u % 5 == 0 && d == 9 { "1.250" } else { "" };
+            csv.push_str(&format!(
+                "U{u:02},2026-03-{d:02} 10:00,agm,north,S{},12.7{},{sg},20,30\n",
+                u / 10,
+                u % 10
+            ));
+        }
+    }
+    let text = csv.into_bytes();
+    let (state, stats) = one_pass("vrla.csv", &text, &store);
+    assert_eq!((stats.rows_read, stats.rows_rejected), (360, 8));
+    assert_eq!(stats.rows_read, stats.rows_accepted + stats.rows_rejected);
+    let want = report_json(&state, &store);
+    assert!(want.contains("is valve-regulated"), "{want}");
+    for threads in [2, 3] {
+        for chunk_bytes in [64, 900, 1 << 20] {
+            let how = Parallelism {
+                threads,
+                chunk_bytes,
+            };
+            let (got, got_stats) = on_threads("vrla.csv", &text, &store, how).unwrap();
+            assert_eq!(got_stats, stats, "{how:?}");
+            assert_same(&report_json(&got, &store), &want, &format!("{how:?}"));
+        }
+    }
+}
+
 #[test]
 fn an_input_error_is_the_one_thread_error() {
     let store = ProfileStore::builtin().unwrap();

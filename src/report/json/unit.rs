@@ -260,7 +260,76 @@ fn text(out: &mut Vec<u8>, s: &str) {
 
 #[cfg(test)]
 mod tests {
-    use super::{needs_escape, text};
+    use super::{needs_escape, text, write_unit};
+    use crate::fleet::analysis::FleetReason;
+    use crate::report::fixture;
+
+    /// serde's bytes for a unit, as the report's array holds it.
+    fn serde_unit(u: &crate::fleet::analysis::UnitReport) -> String {
+        let mut out = Vec::new();
+        super::super::write_nested(&mut out, u, 2).unwrap();
+        String::from_utf8(out).unwrap()
+    }
+
+    #[test]
+    fn a_unit_is_written_as_serde_writes_it_whatever_its_values() {
+        let (report, _) = fixture::report();
+        let mut u = (*report.units[0]).clone();
+        // Every optional value absent, then every one present and odd:
+        // numbers serde writes as null, negative zero, exponents, strings
+        // that need escaping, empty and one-element lists.
+        let mut cases = vec![u.clone()];
+        u.site = None;
+        u.string = None;
+        u.position = None;
+        u.soc_percent = None;
+        u.soc_interval_percent = None;
+        u.ocv_per_cell_25c_volts = None;
+        u.flags.clear();
+        u.reasons.clear();
+        u.sg_mean_25c = None;
+        u.trend_percent_per_30_days = None;
+        u.days_below_recharge = None;
+        u.peer_deviation_mv = None;
+        u.peer_z = None;
+        u.ohmic_rise_percent = None;
+        u.coldest_celsius = None;
+        u.freezing_point_celsius = None;
+        u.heat_ageing_factor = None;
+        cases.push(u.clone());
+        u.unit_id = "B\"7\\\n\u{1}\u{7f}é".into();
+        u.site = Some(String::new());
+        u.string = Some("S\t1".into());
+        u.position = Some(u32::MAX);
+        u.rank = usize::MAX;
+        u.readings = u64::MAX;
+        u.trend_readings = i64::MIN;
+        u.soc_percent = Some(f64::NAN);
+        u.soc_interval_percent = Some([f64::NEG_INFINITY, -0.0]);
+        u.ocv_per_cell_25c_volts = Some(f64::INFINITY);
+        u.flags = vec!["one".into()];
+        u.reasons = vec![FleetReason {
+            rule: "r\"".into(),
+            action: crate::correct::Action::Replace,
+            detail: "≈ 2.1 V\r\n".into(),
+            source: String::new(),
+        }];
+        u.sg_mean_25c = Some(1e-7);
+        u.trend_percent_per_30_days = Some(-1e300);
+        u.days_below_recharge = Some(0.1 + 0.2);
+        u.peer_deviation_mv = Some(f64::MIN_POSITIVE);
+        u.peer_z = Some(123456789012345680.0);
+        u.ohmic_rise_percent = Some(-0.0);
+        u.coldest_celsius = Some(-40.0);
+        u.freezing_point_celsius = Some(f64::MAX);
+        u.heat_ageing_factor = Some(1.0);
+        cases.push(u);
+        for (i, u) in cases.iter().enumerate() {
+            let mut got = Vec::new();
+            write_unit(&mut got, u).unwrap();
+            assert_eq!(String::from_utf8(got).unwrap(), serde_unit(u), "case {i}");
+        }
+    }
 
     #[test]
     fn strings_are_escaped_as_serde_json_escapes_them() {
