@@ -68,45 +68,21 @@ pub(super) fn write_unit(out: &mut Vec<u8>, u: &UnitReport) -> io::Result<()> {
     opt_number(out, *soc_percent)?;
     key(out, "soc_interval_percent");
     match soc_interval_percent {
-        Some([low, high]) => {
-            out.extend_from_slice(b"[\n        ");
-            number(out, *low)?;
-            out.extend_from_slice(b",\n        ");
-            number(out, *high)?;
-            out.extend_from_slice(b"\n      ]");
-        }
+        Some(ends) => list(out, ends, |out, x| number(out, *x))?,
         None => out.extend_from_slice(b"null"),
     }
     key(out, "ocv_per_cell_25c_volts");
     opt_number(out, *ocv_per_cell_25c_volts)?;
     key(out, "flags");
-    if flags.is_empty() {
-        out.extend_from_slice(b"[]");
-    } else {
-        for (i, f) in flags.iter().enumerate() {
-            out.extend_from_slice(if i == 0 {
-                b"[\n        "
-            } else {
-                b",\n        "
-            });
-            text(out, f);
-        }
-        out.extend_from_slice(b"\n      ]");
-    }
+    list(out, flags, |out, f| {
+        text(out, f);
+        Ok(())
+    })?;
     key(out, "reasons");
-    if reasons.is_empty() {
-        out.extend_from_slice(b"[]");
-    } else {
-        for (i, r) in reasons.iter().enumerate() {
-            out.extend_from_slice(if i == 0 {
-                b"[\n        "
-            } else {
-                b",\n        "
-            });
-            reason(out, r);
-        }
-        out.extend_from_slice(b"\n      ]");
-    }
+    list(out, reasons, |out, r| {
+        reason(out, r);
+        Ok(())
+    })?;
     key(out, "sg_mean_25c");
     opt_number(out, *sg_mean_25c)?;
     key(out, "readings");
@@ -130,6 +106,29 @@ pub(super) fn write_unit(out: &mut Vec<u8>, u: &UnitReport) -> io::Result<()> {
         opt_number(out, *value)?;
     }
     out.extend_from_slice(b"\n    }");
+    Ok(())
+}
+
+/// A list as a unit's field: `[]` when empty, else its items on lines of
+/// their own eight spaces in, the closing bracket six.
+fn list<T>(
+    out: &mut Vec<u8>,
+    items: &[T],
+    item: impl Fn(&mut Vec<u8>, &T) -> io::Result<()>,
+) -> io::Result<()> {
+    if items.is_empty() {
+        out.extend_from_slice(b"[]");
+        return Ok(());
+    }
+    for (i, x) in items.iter().enumerate() {
+        out.extend_from_slice(if i == 0 {
+            b"[\n        "
+        } else {
+            b",\n        "
+        });
+        item(out, x)?;
+    }
+    out.extend_from_slice(b"\n      ]");
     Ok(())
 }
 
