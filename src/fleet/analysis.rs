@@ -6,7 +6,7 @@ use super::ingest::{
     ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
     Rejected,
 };
-use super::summary::UnitSummary;
+use super::summary::{HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
     assess_without_budget, estimate, Action, After, FlagCode, Reading, Reason, RestStatus, Setup,
 };
@@ -69,10 +69,7 @@ pub const REJECTED_CAP: usize = 1000;
 #[derive(Clone, Debug)]
 pub struct PreparedRow {
     row: FleetRow,
-    soc: Option<(f64, [f64; 2])>,
-    rested: bool,
-    short: bool,
-    ageing: Option<f64>,
+    facts: RowFacts,
 }
 
 impl FleetState {
@@ -94,27 +91,37 @@ impl FleetState {
         settings: &FleetSettings,
     ) -> Result<PreparedRow, Rejected> {
         let mut row = row;
-        let (soc, rested, short) = match store.get(&row.profile) {
+        let facts = FleetState::facts(&mut row, store, settings)?;
+        Ok(PreparedRow { row, facts })
+    }
+
+    /// [`FleetState::prepare`] without moving the row (it is lent, and given
+    /// back as it was).
+    fn facts(
+        row: &mut FleetRow,
+        store: &ProfileStore,
+        settings: &FleetSettings,
+    ) -> Result<RowFacts, Rejected> {
+        let (soc, rested, short_rest) = match store.get(&row.profile) {
             Ok(p) => {
-                if let Some(reason) = unusable(p, &row) {
+                if let Some(reason) = unusable(p, row) {
                     return Err(Rejected {
                         file: row.source.file.to_string(),
                         line: row.source.line,
                         reason,
                     });
                 }
-                row_soc(p, &mut row, settings)
+                row_soc(p, row, settings)
             }
             Err(_) => (None, false, false),
         };
         let ageing = row
             .temperature
             .map(|t| ageing_factor(t, settings.rules.get(RuleId::LifeHalving)));
-        Ok(PreparedRow {
-            row,
+        Ok(RowFacts {
             soc,
             rested,
-            short,
+            short_rest,
             ageing,
         })
     }
@@ -128,7 +135,8 @@ impl FleetState {
             Some(s) => s,
             None => self.units.entry(p.row.unit_id.clone()).or_default(),
         };
-        summary.add(p.row, p.soc, p.rested, p.short, p.ageing);
+        let f = p.facts;
+        summary.add(p.row, f.soc, f.rested, f.short_rest, f.ageing);
     }
 
     /// Read one input into the state: rows are folded in as they stream by,
@@ -207,8 +215,8 @@ impl FleetState {
             reader,
             opts,
             how,
-            &|rows: &mut Vec<FleetRow>, ready: &mut Vec<Result<PreparedRow, Rejected>>| {
-                ChunkFold::of(rows, ready, store, settings, &rows_pool)
+            &|rows: &mut Vec<FleetRow>, scratch: &mut FoldScratch| {
+                ChunkFold::of(rows, scratch, store, settings, &rows_pool)
             },
             &mut |part: ChunkFold| {
                 for (id, s) in part.units {
@@ -303,8 +311,7 @@ impl FleetState {
 }
 
 /// One chunk's rows as a reading thread hands them on: folded into a
-/// summary of each unit in the chunk (in the order the units first appear),
-/// or, when the chunk's rows are of many different units (a file sorted by
+/// summary of each unit in the chunk (in no particular order), or, when the chunk's rows are of many different units (a file sorted by
 /// time), made ready and left for the state to fold in, since summaries of
 /// one row each cost more to make and merge than the rows do to fold; and
 /// the rows their profile cannot use.
@@ -325,14 +332,24 @@ fn same_id(a: &Arc<str>, b: &Arc<str>) -> bool {
 /// to a run of the same unit.
 const ROWS_PER_RUN_TO_FOLD: usize = 4;
 
+/// A reading thread's space for [`ChunkFold::of`], kept from chunk to chunk.
+#[derive(Default)]
+pub(super) struct FoldScratch {
+    facts: Vec<Option<RowFacts>>,
+    points: Vec<HistoryPoint>,
+}
+
 impl ChunkFold {
-    /// Make every row of `rows` ready (in `ready`, emptied again), then fold
-    /// them in: two passes, so that each step's code stays in the
-    /// instruction cache (see [`FleetState::ingest`]). The vector of rows
-    /// left unfolded comes from `pool`.
+    /// Work out every row's facts (its state of charge, above all), then
+    /// fold the rows in: two passes, so that each step's code stays in the
+    /// instruction cache (see [`FleetState::ingest`]). `rows` is left empty.
+    /// Folded by unit, each run of rows of one unit goes in at once, the
+    /// runs from the last (so that the row a run keeps can be swapped out
+    /// of the vector without moving the rows still to come); otherwise the
+    /// rows are handed on in a vector from `pool`.
     pub(super) fn of(
         rows: &mut Vec<FleetRow>,
-        ready: &mut Vec<Result<PreparedRow, Rejected>>,
+        scratch: &mut FoldScratch,
         store: &ProfileStore,
         settings: &FleetSettings,
         pool: &Pool<PreparedRow>,
@@ -342,51 +359,52 @@ impl ChunkFold {
             .filter(|w| !same_id(&w[0].unit_id, &w[1].unit_id))
             .count();
         let fold = runs * ROWS_PER_RUN_TO_FOLD <= rows.len();
-        ready.extend(
-            rows.drain(..)
-                .map(|r| FleetState::prepare(r, store, settings)),
-        );
         let mut part = ChunkFold::default();
-        if !fold {
-            part.rows = pool.take();
-            for p in ready.drain(..) {
-                match p {
-                    Ok(p) => part.rows.push(p),
-                    Err(r) => part.late.push(r),
-                }
-            }
-            return part;
-        }
-        // Where each unit's summary is; most rows are of the unit the row
-        // before was of (a file grouped by unit), which needs no lookup.
-        let mut at: HashMap<Arc<str>, usize, rustc_hash::FxBuildHasher> = HashMap::default();
-        let mut last: Option<usize> = None;
-        for p in ready.drain(..) {
-            let p = match p {
-                Ok(p) => p,
+        let facts = &mut scratch.facts;
+        facts.clear();
+        for row in rows.iter_mut() {
+            match FleetState::facts(row, store, settings) {
+                Ok(f) => facts.push(Some(f)),
                 Err(r) => {
                     part.late.push(r);
-                    continue;
+                    facts.push(None);
+                }
+            }
+        }
+        if !fold {
+            part.rows = pool.take();
+            part.rows.extend(
+                rows.drain(..)
+                    .zip(facts.drain(..))
+                    .filter_map(|(row, f)| Some(PreparedRow { row, facts: f? })),
+            );
+            return part;
+        }
+        // Where each unit's summary is in `part.units`.
+        let mut at: HashMap<Arc<str>, usize, rustc_hash::FxBuildHasher> = HashMap::default();
+        while let Some(last) = rows.last() {
+            let end = rows.len();
+            let start = rows[..end - 1]
+                .iter()
+                .rposition(|r| !same_id(&r.unit_id, &last.unit_id))
+                .map_or(0, |i| i + 1);
+            let i = match at.get(&*last.unit_id) {
+                Some(&i) => i,
+                None => {
+                    let i = part.units.len();
+                    at.insert(last.unit_id.clone(), i);
+                    part.units
+                        .push((last.unit_id.clone(), UnitSummary::default()));
+                    i
                 }
             };
-            let i = match last {
-                Some(i) if same_id(&part.units[i].0, &p.row.unit_id) => i,
-                _ => match at.get(&*p.row.unit_id) {
-                    Some(&i) => i,
-                    None => {
-                        let i = part.units.len();
-                        at.insert(p.row.unit_id.clone(), i);
-                        part.units
-                            .push((p.row.unit_id.clone(), UnitSummary::default()));
-                        i
-                    }
-                },
-            };
-            last = Some(i);
-            part.units[i]
-                .1
-                .add(p.row, p.soc, p.rested, p.short, p.ageing);
+            if let Some((_, summary)) = part.units.get_mut(i) {
+                summary.add_run(rows, start, &facts[start..end], &mut scratch.points);
+            }
+            // Whatever happened above, the run is done with.
+            rows.truncate(start);
         }
+        facts.clear();
         part
     }
 }

@@ -123,6 +123,21 @@ fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
         .then_with(|| bits(a.capacity.map(|c| c.0)).cmp(&bits(b.capacity.map(|c| c.0))))
 }
 
+/// What folding a row in needs besides the row: its state of charge and the
+/// 95 % interval where it gives one, whether it was rested or too briefly
+/// rested, and the heat-ageing factor at its temperature.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RowFacts {
+    /// State of charge, %, and its 95 % interval.
+    pub soc: Option<(f64, [f64; 2])>,
+    /// Rested at least the profile's minimum (or idle).
+    pub rested: bool,
+    /// Taken with too little rest.
+    pub short_rest: bool,
+    /// Heat-ageing factor at the reading's temperature.
+    pub ageing: Option<f64>,
+}
+
 /// Everything kept about one unit.
 #[derive(Clone, Debug, Default)]
 pub struct UnitSummary {
@@ -200,6 +215,75 @@ impl UnitSummary {
         short_rest: bool,
         ageing: Option<f64>,
     ) {
+        let point = self.count(
+            &row,
+            &RowFacts {
+                soc,
+                rested,
+                short_rest,
+                ageing,
+            },
+        );
+        self.offer_latest(&point, row);
+        self.insert_history(point);
+    }
+
+    /// Fold in the rows `rows[start..]`, all of this unit, with their facts
+    /// (`None` for a row left out), and remove them from `rows`. The same as
+    /// adding them one by one, but only the latest of them is moved into the
+    /// summary (the others are dropped where they lie), and the history
+    /// grows once. `points` is scratch space.
+    pub fn add_run(
+        &mut self,
+        rows: &mut Vec<FleetRow>,
+        start: usize,
+        facts: &[Option<RowFacts>],
+        points: &mut Vec<HistoryPoint>,
+    ) {
+        debug_assert_eq!(rows.len() - start, facts.len());
+        points.clear();
+        // The latest of the run by the order `offer_latest` uses: its point
+        // (an index into `points`) and its row (an index into `rows`).
+        let mut best: Option<(usize, usize)> = None;
+        for ((k, row), f) in rows.iter().enumerate().skip(start).zip(facts) {
+            let Some(f) = f else { continue };
+            let point = self.count(row, f);
+            let newer = match best {
+                None => true,
+                Some((p, r)) => match point.order(&points[p]) {
+                    Ordering::Greater => true,
+                    Ordering::Less => false,
+                    Ordering::Equal => row_order(row, &rows[r]) == Ordering::Greater,
+                },
+            };
+            points.push(point);
+            if newer {
+                best = Some((points.len() - 1, k));
+            }
+        }
+        if let Some((p, r)) = best {
+            let point = points[p].clone();
+            self.offer_latest(&point, rows.swap_remove(r));
+        }
+        rows.truncate(start);
+        let want = (self.history.len() + points.len()).min(HISTORY_CAP + 1);
+        if want > self.history.capacity() {
+            self.history.reserve_exact(want - self.history.len());
+        }
+        for p in points.drain(..) {
+            self.insert_history(p);
+        }
+    }
+
+    /// Count one reading in (everything but the latest row and the
+    /// history), and make its history point.
+    fn count(&mut self, row: &FleetRow, facts: &RowFacts) -> HistoryPoint {
+        let RowFacts {
+            soc,
+            rested,
+            short_rest,
+            ageing,
+        } = *facts;
         self.readings += 1;
         if short_rest {
             self.short_rest += 1;
@@ -232,7 +316,7 @@ impl UnitSummary {
         if let Some(c) = row.capacity {
             add_capacities(&mut self.capacities_ah, &[c.0]);
         }
-        let point = HistoryPoint {
+        HistoryPoint {
             taken_at: row.taken_at,
             after: row.after,
             rested,
@@ -240,9 +324,7 @@ impl UnitSummary {
             soc_interval_milli_percent: interval_q.unwrap_or([NO_SOC; 2]),
             volts: row.volts.map_or(f64::NAN, |v| v.0),
             float_current_amperes: row.float_current.map_or(f64::NAN, |a| a.0),
-        };
-        self.offer_latest(&point, row);
-        self.insert_history(point);
+        }
     }
 
     /// Add one rested reading to the trend's sums: `minutes` since the epoch,

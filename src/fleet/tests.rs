@@ -4,7 +4,7 @@
 //! same readings.
 
 use super::analysis::{
-    finish, finish_owned, finish_owned_on, ChunkFold, FleetSettings, FleetState,
+    finish, finish_owned, finish_owned_on, ChunkFold, FleetSettings, FleetState, FoldScratch,
     PARALLEL_JUDGING_UNITS,
 };
 use super::generate::{generate, GenerateOptions};
@@ -159,18 +159,18 @@ fn a_chunk_is_folded_by_unit_only_when_its_rows_come_in_runs() {
     };
     let grouped = generated(40, 5);
     let pool = Pool::default();
-    let mut ready = Vec::new();
+    let mut scratch = FoldScratch::default();
     let mut rows = rows_of(&grouped);
     let n = rows.len();
-    let part = ChunkFold::of(&mut rows, &mut ready, &store, &settings, &pool);
-    assert!(rows.is_empty() && ready.is_empty());
+    let part = ChunkFold::of(&mut rows, &mut scratch, &store, &settings, &pool);
+    assert!(rows.is_empty());
     assert!(part.rows.is_empty() && part.late.is_empty());
     assert_eq!(part.units.len(), 40);
     let folded: u64 = part.units.iter().map(|(_, s)| s.readings).sum();
     assert_eq!(folded, n as u64);
 
     let mut rows = rows_of(&shuffled(&grouped, 2));
-    let part = ChunkFold::of(&mut rows, &mut ready, &store, &settings, &pool);
+    let part = ChunkFold::of(&mut rows, &mut scratch, &store, &settings, &pool);
     assert!(part.units.is_empty());
     assert_eq!(part.rows.len(), n);
 }
