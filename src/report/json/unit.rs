@@ -203,15 +203,13 @@ const ESCAPE: [u8; 256] = {
     t
 };
 
-/// Whether any of the eight bytes in `w` is one JSON escapes: below 0x20,
-/// a quote or a backslash (the classic "has a byte less than n" and "has a
-/// zero byte" word tricks, which have no false negatives).
-fn needs_escape(w: u64) -> bool {
-    const ONES: u64 = 0x0101_0101_0101_0101;
-    const HIGH: u64 = 0x8080_8080_8080_8080;
-    let below_space = w.wrapping_sub(ONES * 0x20) & !w & HIGH;
-    let zero = |x: u64| x.wrapping_sub(ONES) & !x & HIGH;
-    (below_space | zero(w ^ (ONES * u64::from(b'"'))) | zero(w ^ (ONES * u64::from(b'\\')))) != 0
+/// Whether `bytes` holds a byte JSON escapes: below 0x20, a quote or a
+/// backslash. Without an early exit, so that the compiler tests many bytes
+/// at once; the strings are short, and nearly all need nothing.
+fn needs_escape(bytes: &[u8]) -> bool {
+    bytes.iter().fold(false, |any, &b| {
+        any | (b < 0x20) | (b == b'"') | (b == b'\\')
+    })
 }
 
 /// A string in quotes, escaped.
@@ -219,18 +217,14 @@ fn text(out: &mut Vec<u8>, s: &str) {
     let bytes = s.as_bytes();
     out.reserve(bytes.len() + 2);
     out.push(b'"');
+    if !needs_escape(bytes) {
+        out.extend_from_slice(bytes);
+        out.push(b'"');
+        return;
+    }
     let mut start = 0;
     let mut i = 0;
     while i < bytes.len() {
-        // Eight bytes at a time past the runs that need nothing.
-        if let Some(word) = bytes.get(i..i + 8) {
-            let mut w = [0u8; 8];
-            w.copy_from_slice(word);
-            if !needs_escape(u64::from_le_bytes(w)) {
-                i += 8;
-                continue;
-            }
-        }
         let b = bytes[i];
         let escape = ESCAPE[b as usize];
         i += 1;
@@ -359,29 +353,26 @@ mod tests {
     }
 
     #[test]
-    fn the_word_test_finds_exactly_the_bytes_to_escape() {
-        for b in 0u8..=255 {
-            let escaped = b < 0x20 || b == b'"' || b == b'\\';
-            for at in 0..8 {
-                let mut w = *b"abcdefgh";
-                w[at] = b;
-                assert_eq!(
-                    needs_escape(u64::from_le_bytes(w)),
-                    escaped,
-                    "{b:#x} at {at}"
-                );
+    fn the_scan_finds_exactly_the_strings_to_escape() {
+        let escaped = |b: u8| b < 0x20 || b == b'"' || b == b'\\';
+        // Every byte value at every place of strings up to 40 bytes long.
+        for len in 1..40 {
+            for at in [0, len / 2, len - 1] {
+                for b in 0u8..=255 {
+                    let mut v = vec![b'a'; len];
+                    v[at] = b;
+                    assert_eq!(needs_escape(&v), escaped(b), "{b:#x} at {at} of {len}");
+                }
             }
         }
-        // Random words, any bytes (beyond ASCII too), against the byte test.
+        assert!(!needs_escape(b""));
+        // Random bytes (beyond ASCII too), against the byte test.
         use rand::{Rng, SeedableRng};
         let mut rng = rand::rngs::StdRng::seed_from_u64(5);
-        for _ in 0..200_000 {
-            let w: u64 = rng.gen();
-            let want = w
-                .to_le_bytes()
-                .iter()
-                .any(|&b| b < 0x20 || b == b'"' || b == b'\\');
-            assert_eq!(needs_escape(w), want, "{w:#018x}");
+        for _ in 0..20_000 {
+            let len = rng.gen_range(0..64);
+            let v: Vec<u8> = (0..len).map(|_| rng.gen_range(0x1c..=0xff)).collect();
+            assert_eq!(needs_escape(&v), v.iter().any(|&b| escaped(b)), "{v:?}");
         }
     }
 }
