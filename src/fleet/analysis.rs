@@ -193,7 +193,7 @@ impl FleetState {
     /// they are grouped before they are merged. Each reading thread works
     /// out its chunk's states of charge and, where the chunk's rows come in
     /// runs of the same unit, folds them into summaries of the chunk's units
-    /// ([`ChunkFold`]), which this thread merges into the state: on a file
+    /// (`ChunkFold`), which this thread merges into the state: on a file
     /// grouped by unit, a few merges per chunk instead of a fold per row on
     /// this one thread. `progress` is told the bytes read so far.
     #[allow(clippy::too_many_arguments)]

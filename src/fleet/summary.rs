@@ -127,7 +127,7 @@ fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
 /// 95 % interval where it gives one, whether it was rested or too briefly
 /// rested, and the heat-ageing factor at its temperature.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct RowFacts {
+pub(crate) struct RowFacts {
     /// State of charge, %, and its 95 % interval.
     pub soc: Option<(f64, [f64; 2])>,
     /// Rested at least the profile's minimum (or idle).
@@ -233,7 +233,7 @@ impl UnitSummary {
     /// adding them one by one, but only the latest of them is moved into the
     /// summary (the others are dropped where they lie), and the history
     /// grows once. `points` is scratch space.
-    pub fn add_run(
+    pub(crate) fn add_run(
         &mut self,
         rows: &mut Vec<FleetRow>,
         start: usize,
