@@ -42,7 +42,9 @@ pub struct FleetSettings {
 /// were a tenth of the fold. Its order is arbitrary (it depends on the order
 /// rows arrived in), so whatever the report takes from it in order goes
 /// through [`FleetState::units_by_id`].
-pub type UnitMap = HashMap<Arc<str>, UnitSummary, rustc_hash::FxBuildHasher>;
+/// The summaries are boxed: the table then holds pointers, and growing it
+/// moves and faults in 24 bytes an entry rather than a 300-byte summary.
+pub type UnitMap = HashMap<Arc<str>, Box<UnitSummary>, rustc_hash::FxBuildHasher>;
 
 /// The accumulating state of a fleet analysis: per-unit summaries by id.
 #[derive(Clone, Debug, Default)]
@@ -221,7 +223,7 @@ impl FleetState {
             &mut |part: ChunkFold| {
                 for (id, s) in part.units {
                     match self.units.get_mut(&*id) {
-                        Some(mine) => mine.merge(s),
+                        Some(mine) => mine.merge(*s),
                         None => {
                             self.units.insert(id, s);
                         }
@@ -281,7 +283,7 @@ impl FleetState {
     /// The units in the order of their ids: the one order that does not
     /// depend on how the rows arrived.
     pub fn units_by_id(&self) -> Vec<(&Arc<str>, &UnitSummary)> {
-        let mut v: Vec<_> = self.units.iter().collect();
+        let mut v: Vec<_> = self.units.iter().map(|(id, s)| (id, &**s)).collect();
         v.sort_unstable_by(|a, b| a.0.cmp(b.0));
         v
     }
@@ -290,7 +292,7 @@ impl FleetState {
     pub fn merge(&mut self, other: FleetState) {
         for (id, s) in other.units {
             match self.units.get_mut(&id) {
-                Some(mine) => mine.merge(s),
+                Some(mine) => mine.merge(*s),
                 None => {
                     self.units.insert(id, s);
                 }
@@ -317,7 +319,7 @@ impl FleetState {
 /// the rows their profile cannot use.
 #[derive(Default)]
 pub(super) struct ChunkFold {
-    pub(super) units: Vec<(Arc<str>, UnitSummary)>,
+    pub(super) units: Vec<(Arc<str>, Box<UnitSummary>)>,
     pub(super) rows: Vec<PreparedRow>,
     pub(super) late: Vec<Rejected>,
 }
@@ -393,8 +395,7 @@ impl ChunkFold {
                 None => {
                     let i = part.units.len();
                     at.insert(last.unit_id.clone(), i);
-                    part.units
-                        .push((last.unit_id.clone(), UnitSummary::default()));
+                    part.units.push((last.unit_id.clone(), Box::default()));
                     i
                 }
             };
@@ -773,7 +774,11 @@ pub fn finish_owned_on(
     // The summaries are judged where they lie in the map, through a list of
     // references (moved out into a list of their own, 50,000 summaries were
     // 15 MB more to copy, sort and fault in).
-    let mut units: Vec<(&Arc<str>, &mut UnitSummary)> = state.units.iter_mut().collect();
+    let mut units: Vec<(&Arc<str>, &mut UnitSummary)> = state
+        .units
+        .iter_mut()
+        .map(|(id, s)| (id, &mut **s))
+        .collect();
     // Each summary is emptied as soon as its unit is judged, so that the
     // reports' memory can grow into what the summaries free. Units are judged
     // in the order their histories lie in memory, not by id: freed in id
