@@ -194,6 +194,7 @@ where
         for _ in 0..threads {
             let (chunk_rx, piece_tx) = (&chunk_rx, piece_tx.clone());
             let mut parser = parser.clone();
+            parser.own_file_name();
             let (stop, buffers) = (&stop, &buffers);
             scope.spawn(move || work(name, chunk_rx, &piece_tx, &mut parser, fold, stop, buffers));
         }
