@@ -180,7 +180,7 @@ pub struct UnitSummary {
 }
 
 /// Both values combined by `pick`, or whichever is there.
-fn either<T>(a: Option<T>, b: Option<T>, pick: fn(T, T) -> T) -> Option<T> {
+pub(crate) fn either<T>(a: Option<T>, b: Option<T>, pick: fn(T, T) -> T) -> Option<T> {
     match (a, b) {
         (Some(a), Some(b)) => Some(pick(a, b)),
         (a, b) => a.or(b),
