@@ -137,8 +137,7 @@ impl FleetState {
             Some(s) => s,
             None => self.units.entry(p.row.unit_id.clone()).or_default(),
         };
-        let f = p.facts;
-        summary.add(p.row, f.soc, f.rested, f.short_rest, f.ageing);
+        summary.add(p.row, p.facts);
     }
 
     /// Read one input into the state: rows are folded in as they stream by,
@@ -313,10 +312,11 @@ impl FleetState {
 }
 
 /// One chunk's rows as a reading thread hands them on: folded into a
-/// summary of each unit in the chunk (in no particular order), or, when the chunk's rows are of many different units (a file sorted by
-/// time), made ready and left for the state to fold in, since summaries of
-/// one row each cost more to make and merge than the rows do to fold; and
-/// the rows their profile cannot use.
+/// summary of each unit in the chunk (in no particular order), or, when the
+/// chunk's rows are of many different units (a file sorted by time), made
+/// ready and left for the state to fold in, since summaries of one row each
+/// cost more to make and merge than the rows do to fold; and the rows their
+/// profile cannot use.
 #[derive(Default)]
 pub(super) struct ChunkFold {
     pub(super) units: Vec<(Arc<str>, Box<UnitSummary>)>,
@@ -522,12 +522,7 @@ impl From<Reason> for FleetReason {
 
 impl From<&Reason> for FleetReason {
     fn from(r: &Reason) -> FleetReason {
-        FleetReason {
-            rule: r.rule.clone(),
-            action: r.action,
-            detail: r.detail.clone(),
-            source: r.source.clone(),
-        }
+        FleetReason::from(r.clone())
     }
 }
 
@@ -858,33 +853,32 @@ pub fn finish_owned_on(
         threads.clamp(1, units.len())
     };
     // Each run also counts its units for the overview, while their summaries
-    // are at hand, and keeps a copy of the summaries of units read on float
-    // (with their indices in `units`) for the float checks. A copy, in new
+    // are at hand, and keeps a copy of the summaries of units read on float,
+    // with their ids, for the float checks. A copy, in new
     // memory: left where they were, the few summaries kept (a unit in 13 in
     // the bench's fleet) held on to the allocator pages they share with the
     // rest, and a file sorted by time peaked at 151 MB instead of 124 MB.
-    let judge_run = |offset: usize, units: &mut [(&Arc<str>, &mut UnitSummary)]| {
+    let judge_run = |units: &mut [(&Arc<str>, &mut UnitSummary)]| {
         let mut judged = Vec::with_capacity(units.len());
         let mut counts = UnitCounts::default();
         let mut on_float = Vec::new();
-        for (k, (id, s)) in units.iter_mut().enumerate() {
+        for (id, s) in units.iter_mut() {
             judged.extend(judge_unit(id, s, store, settings));
             if counts.count(s) {
-                on_float.push((offset + k, s.clone()));
+                on_float.push((Arc::clone(id), s.clone()));
             }
             **s = UnitSummary::default();
         }
         (judged, counts, on_float)
     };
-    let per = units.len().div_ceil(threads).max(1);
     let runs = if threads == 1 {
-        vec![judge_run(0, &mut units)]
+        vec![judge_run(&mut units)]
     } else {
+        let per = units.len().div_ceil(threads);
         std::thread::scope(|scope| {
             let runs: Vec<_> = units
                 .chunks_mut(per)
-                .enumerate()
-                .map(|(r, u)| scope.spawn(move || judge_run(r * per, u)))
+                .map(|u| scope.spawn(|| judge_run(u)))
                 .collect();
             runs.into_iter()
                 .map(|run| run.join().unwrap_or_else(|e| std::panic::resume_unwind(e)))
@@ -893,19 +887,16 @@ pub fn finish_owned_on(
     };
     let mut judged = Vec::with_capacity(units.len());
     let mut counts = UnitCounts::default();
-    let mut float_at = Vec::new();
+    let mut float_units = Vec::new();
     for (j, c, f) in runs {
         judged.extend(j);
         counts.merge(c);
-        float_at.extend(f);
+        float_units.extend(f);
     }
-    let on_float = float_at
-        .iter()
-        .filter_map(|(i, s)| Some((units.get(*i)?.0, s)))
-        .collect();
-    let overview = overview(counts, on_float, totals, store, &settings.rules);
     drop(units);
     drop(state);
+    let on_float = float_units.iter().map(|(id, s)| (id, s)).collect();
+    let overview = overview(counts, on_float, totals, store, &settings.rules);
     rank(overview, judged, store, settings)
 }
 
@@ -1007,13 +998,9 @@ fn rank(
             settle(&mut j.report);
         }
     }
-    // Most urgent action first, then lowest state of charge (none last), then
-    // unit id. The keys are worked out once, with the id's first 16 bytes,
-    // so that only the pointers move and whole ids are compared only where
-    // those tie. Ids are unique (they are the state's keys), so the unstable
-    // sort is exact.
-    // The same pass counts units by (site, action), under borrowed names,
-    // sorted into the summary's maps once per pair.
+    // One pass works out the ranking's keys and counts units by (site,
+    // action), under borrowed names, sorted into the summary's maps once per
+    // pair.
     let mut counts: HashMap<(&str, Action), usize, rustc_hash::FxBuildHasher> = HashMap::default();
     let mut order: Vec<RankKey> = judged
         .iter()
@@ -1038,6 +1025,10 @@ fn rank(
             .or_default()
             .insert(action.as_str().to_string(), n);
     }
+    // Most urgent action first, then lowest state of charge (none last), then
+    // unit id. With the id's first 16 bytes in the key, only the pointers
+    // move and whole ids are compared only where those tie. Ids are unique
+    // (they are the state's keys), so the unstable sort is exact.
     order.sort_unstable_by(|a, b| {
         (a.action, a.soc, a.id_prefix)
             .cmp(&(b.action, b.soc, b.id_prefix))

@@ -123,11 +123,21 @@ fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
         .then_with(|| bits(a.capacity.map(|c| c.0)).cmp(&bits(b.capacity.map(|c| c.0))))
 }
 
+/// Whether reading `a` is later than `b` by the order that chooses a unit's
+/// latest row: its point's order, then the rows' content.
+fn later(a: (&HistoryPoint, &FleetRow), b: (&HistoryPoint, &FleetRow)) -> bool {
+    match a.0.order(b.0) {
+        Ordering::Greater => true,
+        Ordering::Less => false,
+        Ordering::Equal => row_order(a.1, b.1) == Ordering::Greater,
+    }
+}
+
 /// What folding a row in needs besides the row: its state of charge and the
 /// 95 % interval where it gives one, whether it was rested or too briefly
 /// rested, and the heat-ageing factor at its temperature.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub(crate) struct RowFacts {
+pub struct RowFacts {
     /// State of charge, %, and its 95 % interval.
     pub soc: Option<(f64, [f64; 2])>,
     /// Rested at least the profile's minimum (or idle).
@@ -205,25 +215,9 @@ pub fn minutes_since_epoch(t: NaiveDateTime) -> i64 {
 }
 
 impl UnitSummary {
-    /// Fold one reading in. `soc` is the state of charge and its 95 % interval
-    /// where the reading gives one; `ageing` the heat-ageing factor at its temperature.
-    pub fn add(
-        &mut self,
-        row: FleetRow,
-        soc: Option<(f64, [f64; 2])>,
-        rested: bool,
-        short_rest: bool,
-        ageing: Option<f64>,
-    ) {
-        let point = self.count(
-            &row,
-            &RowFacts {
-                soc,
-                rested,
-                short_rest,
-                ageing,
-            },
-        );
+    /// Fold one reading in, with what was worked out for it.
+    pub fn add(&mut self, row: FleetRow, facts: RowFacts) {
+        let point = self.count(&row, &facts);
         self.offer_latest(&point, row);
         self.insert_history(point);
     }
@@ -250,11 +244,7 @@ impl UnitSummary {
             let point = self.count(row, f);
             let newer = match best {
                 None => true,
-                Some((p, r)) => match point.order(&points[p]) {
-                    Ordering::Greater => true,
-                    Ordering::Less => false,
-                    Ordering::Equal => row_order(row, &rows[r]) == Ordering::Greater,
-                },
+                Some((p, r)) => later((&point, row), (&points[p], &rows[r])),
             };
             points.push(point);
             if newer {
@@ -343,11 +333,7 @@ impl UnitSummary {
     /// point's order and then by content. Call before inserting the point.
     fn offer_latest(&mut self, point: &HistoryPoint, row: FleetRow) {
         let newer = match (self.history.last(), &self.latest_row) {
-            (Some(last), Some(kept)) => match point.order(last) {
-                Ordering::Greater => true,
-                Ordering::Less => false,
-                Ordering::Equal => row_order(&row, kept) == Ordering::Greater,
-            },
+            (Some(last), Some(kept)) => later((point, &row), (last, kept)),
             _ => true,
         };
         if newer {
