@@ -1870,9 +1870,6 @@ mod number_tests {
 
 #[cfg(test)]
 mod peer_group_tests {
-    use super::{finish, FleetSettings, FleetState};
-    use crate::fleet::ingest::IngestOptions;
-    use crate::profile::store::ProfileStore;
 
     /// Peers are the units of one (site, string, profile). A site named
     /// "north/yard" without strings and the string "yard" of site "north"
@@ -1890,19 +1887,7 @@ mod peer_group_tests {
                 "B{i},2026-01-05 10:00,agm,north,yard,12.50,25,48\n"
             ));
         }
-        let store = ProfileStore::builtin().unwrap();
-        let settings = FleetSettings::default();
-        let mut state = FleetState::default();
-        state
-            .ingest(
-                "peers.csv",
-                csv.as_bytes(),
-                &IngestOptions::default(),
-                &store,
-                &settings,
-            )
-            .unwrap();
-        let report = finish(&state, &store, &settings);
+        let (report, _) = crate::report::fixture::report_of("peers.csv", csv.as_bytes());
         let outliers: Vec<&str> = report
             .units
             .iter()

@@ -34,22 +34,22 @@ B-05,2024-02-10 08:00,agm,twelve,Harbour Yard,,,20,24,idle
 B-06,2024-02-30 08:00,agm,12.7,Harbour Yard,,,20,24,idle
 ";
 
-/// The fixture's report, analysed with the default settings and built-in profiles.
-pub fn report() -> (FleetReport, ProfileStore) {
+/// The report of a CSV text named `name`, read on one thread and analysed
+/// with the default settings and the built-in profiles.
+pub fn report_of(name: &str, text: &[u8]) -> (FleetReport, ProfileStore) {
     let store = ProfileStore::builtin().unwrap();
     let settings = FleetSettings::default();
     let mut state = FleetState::default();
     state
-        .ingest(
-            "demo.csv",
-            CSV.as_bytes(),
-            &IngestOptions::default(),
-            &store,
-            &settings,
-        )
+        .ingest(name, text, &IngestOptions::default(), &store, &settings)
         .unwrap();
     let report = finish(&state, &store, &settings);
     (report, store)
+}
+
+/// The fixture's report, analysed with the default settings and built-in profiles.
+pub fn report() -> (FleetReport, ProfileStore) {
+    report_of("demo.csv", CSV.as_bytes())
 }
 
 /// Invented float round (names invented): a 48 V string of four AGM monoblocs
@@ -71,20 +71,7 @@ E4,2024-02-08 10:00,agm,13.50,6,East <UPS> room,U|1,4,35.0,float,0.25,22.0
 
 /// The float fixture's report, analysed like [`report`].
 pub fn float_report() -> (FleetReport, ProfileStore) {
-    let store = ProfileStore::builtin().unwrap();
-    let settings = FleetSettings::default();
-    let mut state = FleetState::default();
-    state
-        .ingest(
-            "float.csv",
-            FLOAT_CSV.as_bytes(),
-            &IngestOptions::default(),
-            &store,
-            &settings,
-        )
-        .unwrap();
-    let report = finish(&state, &store, &settings);
-    (report, store)
+    report_of("float.csv", FLOAT_CSV.as_bytes())
 }
 
 /// The context every format test uses: fixed time, colour off.

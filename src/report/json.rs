@@ -398,24 +398,10 @@ fn write_array<T: ArrayItem>(
 #[cfg(test)]
 mod parallel_tests {
     use super::write_pretty;
-    use crate::fleet::analysis::{finish, FleetSettings, FleetState};
     use crate::fleet::generate::{generate, GenerateOptions};
-    use crate::fleet::ingest::IngestOptions;
-    use crate::profile::store::ProfileStore;
 
     fn report_of(text: &[u8]) -> crate::fleet::analysis::FleetReport {
-        let store = ProfileStore::builtin().unwrap();
-        let mut state = FleetState::default();
-        state
-            .ingest(
-                "in.csv",
-                text,
-                &IngestOptions::default(),
-                &store,
-                &FleetSettings::default(),
-            )
-            .unwrap();
-        finish(&state, &store, &FleetSettings::default())
+        crate::report::fixture::report_of("in.csv", text).0
     }
 
     #[test]
