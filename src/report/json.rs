@@ -165,11 +165,11 @@ mod tests {
     }
 }
 
-/// Units (or float strings) per block that one thread serializes at a time.
-const BLOCK_ITEMS: usize = 256;
+/// Blocks below which an array is serialized on the calling thread.
+const PARALLEL_BLOCKS: usize = 4;
 
-/// Arrays shorter than this are serialized on the calling thread.
-const PARALLEL_ITEMS: usize = 4 * BLOCK_ITEMS;
+/// Text per block that one thread serializes at a time (256 units).
+const BLOCK_BYTES: usize = 256 * 1536;
 
 /// `serde_json::to_writer_pretty` of the report, byte for byte (tested), with
 /// its two long arrays (units, float strings) serialized on up to `threads`
@@ -311,10 +311,20 @@ impl serde_json::ser::Formatter for NestedPretty {
 /// An item of one of the report's two long arrays, written as serde writes
 /// it one level inside the array.
 trait ArrayItem: Sync {
+    /// About how many bytes an item takes, to size the blocks.
+    const ITEM_BYTES: usize;
+    /// Items per block.
+    const BLOCK_ITEMS: usize = if BLOCK_BYTES / Self::ITEM_BYTES > 1 {
+        BLOCK_BYTES / Self::ITEM_BYTES
+    } else {
+        1
+    };
     fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()>;
 }
 
 impl ArrayItem for Box<UnitReport> {
+    const ITEM_BYTES: usize = 1536;
+
     /// By hand (see [`unit`]): the units are nearly the whole document.
     fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()> {
         unit::write_unit(out, self)
@@ -322,6 +332,9 @@ impl ArrayItem for Box<UnitReport> {
 }
 
 impl ArrayItem for crate::float::StringFloatAnalysis {
+    /// A line per unit of the string: in blocks of 256, as units are, the
+    /// 826 strings of the bench's fleet (6 MB) were one thread's work.
+    const ITEM_BYTES: usize = 8192;
     fn write_item(&self, out: &mut Vec<u8>) -> std::io::Result<()> {
         write_nested(out, self, 2)
     }
@@ -330,7 +343,7 @@ impl ArrayItem for crate::float::StringFloatAnalysis {
 /// One block of array items, as serde writes them one level inside the
 /// report's array: each on its own lines, separated by commas.
 fn block_bytes<T: ArrayItem>(items: &[T], first: bool) -> std::io::Result<Vec<u8>> {
-    let mut out = Vec::with_capacity(items.len() * 1536);
+    let mut out = Vec::with_capacity(items.len() * T::ITEM_BYTES);
     for (i, item) in items.iter().enumerate() {
         out.extend_from_slice(if first && i == 0 {
             b"\n    "
@@ -342,7 +355,7 @@ fn block_bytes<T: ArrayItem>(items: &[T], first: bool) -> std::io::Result<Vec<u8
     Ok(out)
 }
 
-/// An array of the report's top level. Blocks of [`BLOCK_ITEMS`] are dealt
+/// An array of the report's top level. Blocks of [`ArrayItem::BLOCK_ITEMS`] are dealt
 /// to the threads in turn; each thread sends its blocks, in its own order,
 /// down a channel of its own that holds two, and they are written in block
 /// order, so that at most a few blocks wait in memory.
@@ -355,8 +368,8 @@ fn write_array<T: ArrayItem>(
         return w.write_all(b"[]");
     }
     w.write_all(b"[")?;
-    let blocks: Vec<&[T]> = items.chunks(BLOCK_ITEMS).collect();
-    let threads = if items.len() < PARALLEL_ITEMS {
+    let blocks: Vec<&[T]> = items.chunks(T::BLOCK_ITEMS).collect();
+    let threads = if blocks.len() < PARALLEL_BLOCKS {
         1
     } else {
         threads.clamp(1, blocks.len())
@@ -397,8 +410,9 @@ fn write_array<T: ArrayItem>(
 
 #[cfg(test)]
 mod parallel_tests {
-    use super::write_pretty;
+    use super::{write_pretty, ArrayItem, UnitReport};
     use crate::fleet::generate::{generate, GenerateOptions};
+    use crate::float::StringFloatAnalysis;
 
     fn report_of(text: &[u8]) -> crate::fleet::analysis::FleetReport {
         crate::report::fixture::report_of("in.csv", text).0
@@ -409,7 +423,7 @@ mod parallel_tests {
         let mut generated = Vec::new();
         generate(
             &GenerateOptions {
-                units: 1500,
+                units: 9000,
                 days: 60,
                 seed: 3,
                 readings_per_unit: Some(2),
@@ -428,9 +442,13 @@ mod parallel_tests {
             let report = report_of(&text);
             let want = serde_json::to_vec_pretty(&report).unwrap();
             if what == "generated" {
+                let blocks = |items: usize, per: usize| items.div_ceil(per);
                 assert!(
-                    report.units.len() >= super::PARALLEL_ITEMS,
-                    "{what}: too few units to share out"
+                    blocks(report.units.len(), Box::<UnitReport>::BLOCK_ITEMS)
+                        >= super::PARALLEL_BLOCKS
+                        && blocks(report.float_strings.len(), StringFloatAnalysis::BLOCK_ITEMS)
+                            >= super::PARALLEL_BLOCKS,
+                    "{what}: too few units or float strings to share out"
                 );
                 assert!(
                     !report.float_strings.is_empty() && !report.rejected.is_empty(),
