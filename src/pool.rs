@@ -1,9 +1,9 @@
 //! Emptied vectors kept for reuse between threads.
 //!
 //! The parallel reader hands large buffers from thread to thread (chunks of
-//! input, vectors of prepared rows). Allocated afresh each time, every
-//! buffer of a few hundred kilobytes came as new pages that the system had to
-//! zero; handed back once emptied, the same few buffers serve the whole run.
+//! input). Allocated afresh each time, every buffer of a few hundred
+//! kilobytes came as new pages that the system had to zero; handed back once
+//! emptied, the same few buffers serve the whole run.
 
 use std::sync::Mutex;
 

@@ -6,11 +6,11 @@ use super::ingest::{
     ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
     Rejected,
 };
+use super::shards::{shard_of, with_summary, SharedUnits, SHARDS};
 use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
     assess_without_budget, estimate, Action, After, FlagCode, Reading, Reason, RestStatus, Setup,
 };
-use crate::pool::Pool;
 use crate::profile::store::ProfileStore;
 use crate::profile::Profile;
 use crate::rules::{RuleId, Rules};
@@ -130,14 +130,7 @@ impl FleetState {
 
     /// Fold in a row made ready by [`FleetState::prepare`].
     pub fn add_prepared(&mut self, p: PreparedRow) {
-        // Look the unit up by its name before cloning the name for a new
-        // entry: a clone is an atomic count on a name the reading threads
-        // share, and nearly every row is of a unit already there.
-        let summary = match self.units.get_mut(&*p.row.unit_id) {
-            Some(s) => s,
-            None => self.units.entry(p.row.unit_id.clone()).or_default(),
-        };
-        summary.add(p.row, p.facts);
+        add_to(&mut self.units, p.row, p.facts);
     }
 
     /// Read one input into the state: rows are folded in as they stream by,
@@ -192,11 +185,10 @@ impl FleetState {
     /// [`crate::fleet::ingest::parallel`]): the same state results, because
     /// the summaries do not depend on the order rows arrive in, nor on how
     /// they are grouped before they are merged. Each reading thread works
-    /// out its chunk's states of charge and, where the chunk's rows come in
-    /// runs of the same unit, folds them into summaries of the chunk's units
-    /// (`ChunkFold`), which this thread merges into the state: on a file
-    /// grouped by unit, a few merges per chunk instead of a fold per row on
-    /// this one thread. `progress` is told the bytes read so far.
+    /// out its chunk's states of charge and folds the rows into the state's
+    /// summaries itself (`ChunkFold`), which are shared out into shards,
+    /// each behind a lock, for the while (`SharedUnits`): this thread only
+    /// collects the rejects. `progress` is told the bytes read so far.
     #[allow(clippy::too_many_arguments)]
     pub fn ingest_parallel<R: std::io::Read + Send>(
         &mut self,
@@ -210,32 +202,21 @@ impl FleetState {
     ) -> Result<IngestStats, IngestError> {
         let mut rejects = Vec::new();
         let mut late = Vec::new();
-        let rows_pool = Pool::default();
-        let mut stats = ingest_parallel(
+        let units = SharedUnits::new(std::mem::take(&mut self.units));
+        let read = ingest_parallel(
             name,
             reader,
             opts,
             how,
             &|rows: &mut Vec<FleetRow>, scratch: &mut FoldScratch| {
-                ChunkFold::of(rows, scratch, store, settings, &rows_pool)
+                ChunkFold::of(rows, scratch, store, settings, &units)
             },
-            &mut |part: ChunkFold| {
-                for (id, s) in part.units {
-                    match self.units.get_mut(&*id) {
-                        Some(mine) => mine.merge(*s),
-                        None => {
-                            self.units.insert(id, s);
-                        }
-                    }
-                }
-                let mut rows = part.rows;
-                rows.drain(..).for_each(|p| self.add_prepared(p));
-                rows_pool.put(rows);
-                late.extend(part.late);
-            },
+            &mut |part: ChunkFold| late.extend(part.late),
             &mut |r| rejects.push(r),
             progress,
-        )?;
+        );
+        self.units = units.into_map();
+        let mut stats = read?;
         self.record(rejects, late, &mut stats);
         Ok(stats)
     }
@@ -311,17 +292,13 @@ impl FleetState {
     }
 }
 
-/// One chunk's rows as a reading thread hands them on: folded into a
-/// summary of each unit in the chunk (in no particular order), or, when the
-/// chunk's rows are of many different units (a file sorted by time), made
-/// ready and left for the state to fold in, since summaries of one row each
-/// cost more to make and merge than the rows do to fold; and the rows their
-/// profile cannot use.
+/// What a reading thread hands on for one chunk, having folded its rows
+/// into the state's summaries itself: the rows their profile cannot use,
+/// and whether the rows were folded by unit.
 #[derive(Default)]
 pub(super) struct ChunkFold {
-    pub(super) units: Vec<(Arc<str>, Box<UnitSummary>)>,
-    pub(super) rows: Vec<PreparedRow>,
     pub(super) late: Vec<Rejected>,
+    pub(super) by_unit: bool,
 }
 
 /// Whether two ids are the same: the same allocation for rows the reader
@@ -330,8 +307,8 @@ fn same_id(a: &Arc<str>, b: &Arc<str>) -> bool {
     Arc::ptr_eq(a, b) || **a == **b
 }
 
-/// A chunk is folded into summaries when its rows average at least this many
-/// to a run of the same unit.
+/// A chunk is folded by unit when its rows average at least this many to a
+/// run of the same unit.
 const ROWS_PER_RUN_TO_FOLD: usize = 4;
 
 /// A reading thread's space for [`ChunkFold::of`], kept from chunk to chunk.
@@ -339,29 +316,38 @@ const ROWS_PER_RUN_TO_FOLD: usize = 4;
 pub(super) struct FoldScratch {
     facts: Vec<Option<RowFacts>>,
     points: Vec<HistoryPoint>,
+    /// A chunk's rows by (turn, shard, place in the chunk), and the rows themselves
+    /// while they are taken out in that order.
+    order: Vec<(u32, u32, u32)>,
+    slots: Vec<Option<FleetRow>>,
 }
 
 impl ChunkFold {
     /// Work out every row's facts (its state of charge, above all), then
-    /// fold the rows in: two passes, so that each step's code stays in the
-    /// instruction cache (see [`FleetState::ingest`]). `rows` is left empty.
-    /// Folded by unit, each run of rows of one unit goes in at once, the
-    /// runs from the last (so that the row a run keeps can be swapped out
-    /// of the vector without moving the rows still to come); otherwise the
-    /// rows are handed on in a vector from `pool`.
+    /// fold the rows into `units`: two passes, so that each step's code
+    /// stays in the instruction cache (see [`FleetState::ingest`]). `rows`
+    /// is left empty.
+    ///
+    /// When the rows come in runs of one unit (a file grouped by unit), each
+    /// run goes in at once, the runs from the last (so that the row a run
+    /// keeps can be swapped out of the vector without moving the rows still
+    /// to come). Otherwise (a file sorted by time) the rows go in one by one,
+    /// in the order of their units' shards, each shard locked once.
     pub(super) fn of(
         rows: &mut Vec<FleetRow>,
         scratch: &mut FoldScratch,
         store: &ProfileStore,
         settings: &FleetSettings,
-        pool: &Pool<PreparedRow>,
+        units: &SharedUnits,
     ) -> ChunkFold {
         let runs = 1 + rows
             .windows(2)
             .filter(|w| !same_id(&w[0].unit_id, &w[1].unit_id))
             .count();
-        let fold = runs * ROWS_PER_RUN_TO_FOLD <= rows.len();
-        let mut part = ChunkFold::default();
+        let mut part = ChunkFold {
+            late: Vec::new(),
+            by_unit: runs * ROWS_PER_RUN_TO_FOLD <= rows.len(),
+        };
         let facts = &mut scratch.facts;
         facts.clear();
         for row in rows.iter_mut() {
@@ -373,40 +359,73 @@ impl ChunkFold {
                 }
             }
         }
-        if !fold {
-            part.rows = pool.take();
-            part.rows.extend(
-                rows.drain(..)
-                    .zip(facts.drain(..))
-                    .filter_map(|(row, f)| Some(PreparedRow { row, facts: f? })),
-            );
-            return part;
-        }
-        // Where each unit's summary is in `part.units`.
-        let mut at: HashMap<Arc<str>, usize, rustc_hash::FxBuildHasher> = HashMap::default();
-        while let Some(last) = rows.last() {
-            let end = rows.len();
-            let start = rows[..end - 1]
-                .iter()
-                .rposition(|r| !same_id(&r.unit_id, &last.unit_id))
-                .map_or(0, |i| i + 1);
-            let i = match at.get(&*last.unit_id) {
-                Some(&i) => i,
-                None => {
-                    let i = part.units.len();
-                    at.insert(last.unit_id.clone(), i);
-                    part.units.push((last.unit_id.clone(), Box::default()));
-                    i
-                }
-            };
-            if let Some((_, summary)) = part.units.get_mut(i) {
-                summary.add_run(rows, start, &facts[start..end], &mut scratch.points);
+        if part.by_unit {
+            while let Some(last) = rows.last() {
+                let end = rows.len();
+                let start = rows[..end - 1]
+                    .iter()
+                    .rposition(|r| !same_id(&r.unit_id, &last.unit_id))
+                    .map_or(0, |i| i + 1);
+                let id = Arc::clone(&last.unit_id);
+                let mut shard = units.lock(shard_of(&id));
+                with_summary(&mut shard, &id, |s| {
+                    s.add_run(rows, start, &facts[start..end], &mut scratch.points)
+                });
+                drop(shard);
+                // Whatever happened above, the run is done with.
+                rows.truncate(start);
             }
-            // Whatever happened above, the run is done with.
-            rows.truncate(start);
+        } else {
+            let (order, slots) = (&mut scratch.order, &mut scratch.slots);
+            // Chunks go round the shards from different places, so that two
+            // threads do not move from shard to shard in step, waiting for
+            // each other at every one.
+            let turn = rows.first().map_or(0, |r| r.source.line as usize);
+            order.clear();
+            order.extend(
+                rows.iter()
+                    .zip(facts.iter())
+                    .enumerate()
+                    .filter(|(_, (_, f))| f.is_some())
+                    .map(|(i, (row, _))| {
+                        let shard = shard_of(&row.unit_id);
+                        (
+                            (shard.wrapping_add(turn) % SHARDS) as u32,
+                            shard as u32,
+                            i as u32,
+                        )
+                    }),
+            );
+            order.sort_unstable();
+            slots.clear();
+            slots.extend(rows.drain(..).map(Some));
+            for same_shard in order.chunk_by(|a, b| a.1 == b.1) {
+                let mut shard = units.lock(same_shard[0].1 as usize);
+                for &(_, _, i) in same_shard {
+                    let i = i as usize;
+                    if let (Some(row), Some(Some(f))) = (slots[i].take(), facts.get(i)) {
+                        add_to(&mut shard, row, *f);
+                    }
+                }
+            }
+            slots.clear();
         }
         facts.clear();
         part
+    }
+}
+
+/// Fold a row with its facts into its unit's summary in `units`.
+fn add_to(units: &mut UnitMap, row: FleetRow, facts: RowFacts) {
+    // Look the unit up by its name before cloning the name for a new entry:
+    // a clone is an atomic count, and nearly every row is of a unit already
+    // there.
+    match units.get_mut(&*row.unit_id) {
+        Some(s) => s.add(row, facts),
+        None => {
+            let id = Arc::clone(&row.unit_id);
+            units.entry(id).or_default().add(row, facts)
+        }
     }
 }
 

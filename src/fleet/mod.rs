@@ -7,6 +7,7 @@
 pub mod analysis;
 pub mod generate;
 pub mod ingest;
+mod shards;
 pub mod summary;
 
 #[cfg(test)]

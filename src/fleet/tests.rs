@@ -5,11 +5,11 @@
 
 use super::analysis::{
     finish, finish_owned, finish_owned_on, ChunkFold, FleetSettings, FleetState, FoldScratch,
-    PARALLEL_JUDGING_UNITS,
+    UnitMap, PARALLEL_JUDGING_UNITS,
 };
 use super::generate::{generate, GenerateOptions};
 use super::ingest::{ingest, IngestOptions, IngestStats, Parallelism};
-use crate::pool::Pool;
+use super::shards::SharedUnits;
 use crate::profile::store::ProfileStore;
 use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
@@ -158,21 +158,24 @@ fn a_chunk_is_folded_by_unit_only_when_its_rows_come_in_runs() {
         rows
     };
     let grouped = generated(40, 5);
-    let pool = Pool::default();
     let mut scratch = FoldScratch::default();
-    let mut rows = rows_of(&grouped);
-    let n = rows.len();
-    let part = ChunkFold::of(&mut rows, &mut scratch, &store, &settings, &pool);
-    assert!(rows.is_empty());
-    assert!(part.rows.is_empty() && part.late.is_empty());
-    assert_eq!(part.units.len(), 40);
-    let folded: u64 = part.units.iter().map(|(_, s)| s.readings).sum();
-    assert_eq!(folded, n as u64);
-
-    let mut rows = rows_of(&shuffled(&grouped, 2));
-    let part = ChunkFold::of(&mut rows, &mut scratch, &store, &settings, &pool);
-    assert!(part.units.is_empty());
-    assert_eq!(part.rows.len(), n);
+    for (rows, by_unit) in [
+        (rows_of(&grouped), true),
+        (rows_of(&shuffled(&grouped, 2)), false),
+    ] {
+        let mut rows = rows;
+        let n = rows.len();
+        let units = SharedUnits::new(UnitMap::default());
+        let part = ChunkFold::of(&mut rows, &mut scratch, &store, &settings, &units);
+        assert!(rows.is_empty());
+        assert!(part.late.is_empty());
+        assert_eq!(part.by_unit, by_unit);
+        // Either way every row is folded into its unit's summary.
+        let units = units.into_map();
+        assert_eq!(units.len(), 40);
+        let folded: u64 = units.values().map(|s| s.readings).sum();
+        assert_eq!(folded, n as u64);
+    }
 }
 
 /// Rows the reader accepts but their profile cannot use (an SG on a
