@@ -284,6 +284,40 @@ fn split(text: &[u8], k: usize, rng: &mut impl Rng) -> Vec<Vec<u8>> {
         .collect()
 }
 
+/// Several inputs read in turn into one state on the reading threads (the
+/// shared summaries then start from the units already read), each split at
+/// random so that units recur from input to input, give the one-pass report.
+#[test]
+fn inputs_read_in_turn_on_threads_give_the_one_pass_report() {
+    let store = ProfileStore::builtin().unwrap();
+    let text = generated(300, 5);
+    let (whole, _) = one_pass("whole.csv", &text, &store);
+    let want = report_json(&whole, &store);
+    let mut rng = rand::rngs::StdRng::seed_from_u64(21);
+    for k in [2, 3] {
+        let mut state = FleetState::default();
+        for (i, part) in split(&text, k, &mut rng).iter().enumerate() {
+            let how = Parallelism {
+                threads: 2,
+                chunk_bytes: 700,
+            };
+            state
+                .ingest_parallel(
+                    &format!("part{i}.csv"),
+                    part.as_slice(),
+                    &IngestOptions::default(),
+                    &store,
+                    &FleetSettings::default(),
+                    how,
+                    &mut |_| {},
+                )
+                .unwrap();
+        }
+        assert_eq!(state.units.len(), whole.units.len());
+        assert_same(&report_json(&state, &store), &want, &format!("{k} inputs"));
+    }
+}
+
 #[test]
 fn parts_analysed_apart_and_merged_in_any_order_give_the_one_pass_report() {
     let store = ProfileStore::builtin().unwrap();
