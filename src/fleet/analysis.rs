@@ -839,6 +839,9 @@ const BATCH_ROWS: usize = 1024;
 /// given: starting threads costs more than a few thousand units take.
 pub const PARALLEL_JUDGING_UNITS: usize = 4096;
 
+/// Units in a run that a judging thread takes at a time.
+const JUDGING_RUN_UNITS: usize = 1024;
+
 /// [`finish_owned`] with the units judged on up to `threads` threads, each
 /// taking a contiguous run of them; the report is the same on any number of
 /// threads (tested).
@@ -894,16 +897,33 @@ pub fn finish_owned_on(
     let runs = if threads == 1 {
         vec![judge_run(&mut units)]
     } else {
-        let per = units.len().div_ceil(threads);
-        std::thread::scope(|scope| {
-            let runs: Vec<_> = units
-                .chunks_mut(per)
-                .map(|u| scope.spawn(|| judge_run(u)))
+        // Runs of JUDGING_RUN_UNITS, taken in turn by whichever thread is
+        // free: halves, one per thread, finished up to a fifth apart.
+        let next = std::sync::Mutex::new(units.chunks_mut(JUDGING_RUN_UNITS).enumerate());
+        let mut runs: Vec<_> = std::thread::scope(|scope| {
+            let threads: Vec<_> = (0..threads)
+                .map(|_| {
+                    scope.spawn(|| {
+                        let mut done = Vec::new();
+                        loop {
+                            let run = next
+                                .lock()
+                                .unwrap_or_else(std::sync::PoisonError::into_inner)
+                                .next();
+                            let Some((i, units)) = run else { break done };
+                            done.push((i, judge_run(units)));
+                        }
+                    })
+                })
                 .collect();
-            runs.into_iter()
-                .map(|run| run.join().unwrap_or_else(|e| std::panic::resume_unwind(e)))
-                .collect::<Vec<_>>()
-        })
+            threads
+                .into_iter()
+                .flat_map(|t| t.join().unwrap_or_else(|e| std::panic::resume_unwind(e)))
+                .collect()
+        });
+        // In the units' order again, as on one thread.
+        runs.sort_unstable_by_key(|(i, _)| *i);
+        runs.into_iter().map(|(_, run)| run).collect()
     };
     let mut judged = Vec::with_capacity(units.len());
     let mut counts = UnitCounts::default();
