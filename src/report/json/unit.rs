@@ -305,7 +305,7 @@ mod tests {
             rule: "r\"".into(),
             action: crate::correct::Action::Replace,
             detail: "≈ 2.1 V\r\n".into(),
-            source: String::new(),
+            source: "".into(),
         }];
         u.sg_mean_25c = Some(1e-7);
         u.trend_percent_per_30_days = Some(-1e300);
