@@ -43,7 +43,7 @@ impl SharedUnits {
         }
     }
 
-    /// The shard that holds unit `id`, locked.
+    /// Shard `shard` (a unit's is [`shard_of`] its id), locked.
     pub(super) fn lock(&self, shard: usize) -> MutexGuard<'_, UnitMap> {
         // A thread that panicked while folding ends the whole read (its
         // panic is passed on), so a poisoned shard is never read after.
