@@ -71,6 +71,18 @@ fn on_threads(
     how: Parallelism,
 ) -> Result<(FleetState, IngestStats), String> {
     let mut state = FleetState::default();
+    let stats = read_on_threads(&mut state, name, text, store, how)?;
+    Ok((state, stats))
+}
+
+/// Read one more input into `state` on the reading threads.
+fn read_on_threads(
+    state: &mut FleetState,
+    name: &str,
+    text: &[u8],
+    store: &ProfileStore,
+    how: Parallelism,
+) -> Result<IngestStats, String> {
     let mut seen = 0;
     let stats = state
         .ingest_parallel(
@@ -85,7 +97,7 @@ fn on_threads(
         .map_err(|e| e.to_string())?;
     // The progress count ends at every byte after the header.
     assert!(seen <= text.len() as u64 && seen + 4096 >= text.len() as u64);
-    Ok((state, stats))
+    Ok(stats)
 }
 
 /// Awkward but valid input: byte-order mark, CRLF, quoted fields with the
@@ -301,17 +313,7 @@ fn inputs_read_in_turn_on_threads_give_the_one_pass_report() {
                 threads: 2,
                 chunk_bytes: 700,
             };
-            state
-                .ingest_parallel(
-                    &format!("part{i}.csv"),
-                    part.as_slice(),
-                    &IngestOptions::default(),
-                    &store,
-                    &FleetSettings::default(),
-                    how,
-                    &mut |_| {},
-                )
-                .unwrap();
+            read_on_threads(&mut state, &format!("part{i}.csv"), part, &store, how).unwrap();
         }
         assert_eq!(state.units.len(), whole.units.len());
         assert_same(&report_json(&state, &store), &want, &format!("{k} inputs"));
