@@ -4,8 +4,9 @@
 //! record boundaries; worker threads parse the chunks with the same row
 //! parser as the one-thread path and fold each chunk's accepted rows into
 //! one result (a fleet analysis works out every row's state of charge and
-//! folds the chunk into summaries of its units); the calling thread
-//! receives the results in whatever order they finish and hands them on.
+//! folds the chunk into the state's summaries, returning its rejects); the
+//! calling thread receives the results in whatever order they finish and
+//! hands them on.
 //! That order differs from the file's, so this is for consumers whose
 //! result does not depend on order, as the fleet summaries do not (see
 //! [`crate::fleet::summary`]).
