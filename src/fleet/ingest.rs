@@ -1290,7 +1290,10 @@ impl RowParser<'_> {
                     problem(
                         problems,
                         Col::TakenAt,
-                        format_args!("{t} is in the future (now is {now})"),
+                        format_args!(
+                            "{t} is in the future: expected at most {}, as a reading cannot be taken later; check the year and the meter's clock",
+                            now.format("%Y-%m-%d %H:%M")
+                        ),
                     );
                 }
                 Some(t)
