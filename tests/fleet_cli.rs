@@ -208,7 +208,9 @@ fn generated_fleet_round_trips_through_the_analysis() {
     // stderr gives the counts; the unit-by-unit key goes to --truth only.
     let note = String::from_utf8_lossy(&made.stderr);
     assert!(
-        note.contains("\"units\":300") && !note.contains("faulty_units"),
+        note.contains("\"units\":300")
+            && !note.contains("faulty_units")
+            && !note.contains("past today"),
         "{note}"
     );
     let key: Value = serde_json::from_slice(&std::fs::read(&truth).unwrap()).unwrap();
@@ -411,4 +413,30 @@ fn an_output_that_is_a_pipe_or_device_is_written_through_not_replaced() {
     assert_eq!(out.status.code(), Some(3), "{out:?}"); // the demo has two bad rows
     let text = reader.join().unwrap();
     assert!(text.starts_with("rank,unit_id"), "{text}");
+}
+
+/// The generator's readings start on a fixed day; a span that runs past
+/// today is said, since `fleet` rejects readings dated ahead.
+#[test]
+fn a_generated_span_past_today_is_noted() {
+    let made = restvolt()
+        .args([
+            "generate",
+            "--units",
+            "2",
+            "--days",
+            "20000",
+            "--readings-per-unit",
+            "3",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(made.status.code(), Some(0));
+    let note = String::from_utf8_lossy(&made.stderr);
+    assert!(
+        note.contains("start on 2024-01-08")
+            && note.contains("past today")
+            && note.contains("--days "),
+        "{note}"
+    );
 }

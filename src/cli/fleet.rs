@@ -299,7 +299,7 @@ pub struct GenerateArgs {
     /// Number of units
     #[arg(long, default_value = "100")]
     pub units: u32,
-    /// Days the readings span
+    /// Days the readings span, from 2024-01-08 (fixed, so that a seed always gives the same file)
     #[arg(long, default_value = "90")]
     pub days: u32,
     /// Random seed (the same seed gives the same file)
@@ -343,6 +343,17 @@ pub fn generate(args: GenerateArgs) -> CmdResult {
             "by_profile": summary.by_profile,
         });
         eprintln!("restvolt: wrote {}: {counts}", p.display());
+    }
+    // The start is fixed, so a long span runs past today, and `fleet`
+    // rejects what is dated more than a day ahead.
+    let first = crate::fleet::generate::first_day();
+    let last = first + chrono::Duration::days(i64::from(args.days));
+    let today = chrono::Local::now().date_naive();
+    if last > today {
+        eprintln!(
+            "restvolt: note: the readings start on {first} and run to {last}, past today: `restvolt fleet` rejects readings dated more than a day ahead; --days {} or fewer keeps them all in the past",
+            (today - first).num_days().max(0)
+        );
     }
     if let Some(t) = &args.truth {
         let key = serde_json::to_vec_pretty(&summary).map_err(CliError::fail)?;

@@ -297,6 +297,12 @@ fn opt<T: ToString>(v: Option<T>) -> String {
     v.map(|v| v.to_string()).unwrap_or_default()
 }
 
+/// The day the generated readings start: fixed, so that a seed always gives
+/// the same file. They run to `days` after it.
+pub fn first_day() -> NaiveDate {
+    NaiveDate::from_ymd_opt(2024, 1, 8).unwrap_or_default()
+}
+
 /// Write a synthetic fleet (header and records) to `out`.
 pub fn generate<W: io::Write>(opts: &GenerateOptions, out: W) -> io::Result<GenerateSummary> {
     let store = ProfileStore::builtin().map_err(io::Error::other)?;
@@ -306,9 +312,7 @@ pub fn generate<W: io::Write>(opts: &GenerateOptions, out: W) -> io::Result<Gene
         profile("agm")?,
         profile("flooded-automotive")?,
     );
-    let start = NaiveDate::from_ymd_opt(2024, 1, 8)
-        .and_then(|d| d.and_hms_opt(0, 0, 0))
-        .ok_or_else(|| io::Error::other("start date"))?;
+    let start = first_day().and_time(chrono::NaiveTime::MIN);
 
     let mut rng = StdRng::seed_from_u64(opts.seed);
     let mut wtr = csv::Writer::from_writer(out);
