@@ -183,6 +183,39 @@ fn a_fraction_of_a_volt_is_a_connection_fault() {
     assert_eq!(v["action"], "remeasure");
 }
 
+/// A reading that says nothing of the charge (a shorted cell, a voltage no
+/// cell count explains) shows no percentage that would read as a flat
+/// battery, as the fleet report shows none; the freezing point is the flat
+/// battery's, the safe assumption (common practice).
+#[test]
+fn a_reading_that_says_nothing_of_the_charge_shows_no_percentage() {
+    for volts in ["10.55", "0.3", "-12.6"] {
+        let r = run(&["check", "--volts", volts, "--temp", "25C", "--rest", "24h"]);
+        let charge = r
+            .stdout
+            .lines()
+            .find(|l| l.starts_with("Charge "))
+            .unwrap_or("");
+        assert_eq!(
+            charge, "Charge  not known: this reading says nothing of it",
+            "{volts} V:\n{}",
+            r.stdout
+        );
+        assert!(r.stdout.contains("if flat"), "{volts} V:\n{}", r.stdout);
+    }
+    let r = run(&[
+        "check", "--volts", "12.45", "--temp", "25C", "--rest", "24h",
+    ]);
+    assert!(
+        r.stdout
+            .lines()
+            .any(|l| l.starts_with("Charge  ") && l.contains(" %  (95 %: "))
+            && r.stdout.contains("at this charge"),
+        "{}",
+        r.stdout
+    );
+}
+
 #[test]
 fn short_rest_after_charge_asks_to_measure_again() {
     // Common practice: rest at least 4–6 h before an OCV reading (REFERENCES §4);

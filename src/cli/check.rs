@@ -445,16 +445,22 @@ pub fn render_text(
     };
     let mut s = String::new();
     let _ = writeln!(s, "{}  ({} cells)", profile_name, a.cells);
-    let _ = writeln!(
-        s,
-        "Charge  {:.0} %  (95 %: {:.0}–{:.0} %)",
-        a.soc_percent, a.soc_interval_percent[0], a.soc_interval_percent[1]
-    );
-    let _ = writeln!(
-        s,
-        "        {}",
-        gauge(a.soc_percent, a.soc_interval_percent)
-    );
+    let unknown = a.charge_unknown();
+    if unknown {
+        // As the fleet report does: no number that would read as a charge.
+        let _ = writeln!(s, "Charge  not known: this reading says nothing of it");
+    } else {
+        let _ = writeln!(
+            s,
+            "Charge  {:.0} %  (95 %: {:.0}–{:.0} %)",
+            a.soc_percent, a.soc_interval_percent[0], a.soc_interval_percent[1]
+        );
+        let _ = writeln!(
+            s,
+            "        {}",
+            gauge(a.soc_percent, a.soc_interval_percent)
+        );
+    }
     if let (Some(v), Some(c)) = (a.ocv_25c_volts, a.ocv_per_cell_25c_volts) {
         let _ = writeln!(s, "Rest V at 25 °C  {v:.3} V  ({c:.4} V/cell)");
     }
@@ -483,7 +489,10 @@ pub fn render_text(
         let _ = writeln!(s, "        measure again at {at}");
     }
     if let Some(fp) = a.freezing_point_celsius {
-        let _ = writeln!(s, "Freezes near {fp:.0} °C at this charge");
+        // Worked out at the clamped charge, the lowest: what a flat battery
+        // would do, the safe assumption when the charge is not known.
+        let at = if unknown { "if flat" } else { "at this charge" };
+        let _ = writeln!(s, "Freezes near {fp:.0} °C {at}");
     }
     if !a.flags.is_empty() {
         let _ = writeln!(s, "Flags");

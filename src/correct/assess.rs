@@ -409,6 +409,18 @@ impl Assessment {
     pub fn voltage_discredited(&self) -> bool {
         FlagCode::DISCREDIT_VOLTAGE.into_iter().any(|c| self.has(c))
     }
+
+    /// Whether the reading says nothing of the unit's charge, though
+    /// [`Assessment::soc_percent`] holds a number: with a cell shorted the
+    /// voltage lies below the curve for the whole unit (a 0 % would read as a
+    /// flat battery; the flag's detail gives the charge of the cells left),
+    /// and a voltage that no cell count explains (a probe off the post, the
+    /// wrong battery) says nothing either, unless a hydrometer reading gave
+    /// the charge.
+    pub fn charge_unknown(&self) -> bool {
+        self.has(FlagCode::SuspectShortedCell)
+            || (self.soc_basis == "volts" && self.voltage_discredited())
+    }
 }
 
 /// A reading that cannot be assessed at all.

@@ -9,7 +9,7 @@ use super::ingest::{
 use super::shards::{shard_of, with_summary, SharedUnits, SHARDS};
 use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
-    assess_without_budget, estimate, Action, After, FlagCode, Reading, Reason, RestStatus, Setup,
+    assess_without_budget, estimate, Action, After, Reading, Reason, RestStatus, Setup,
 };
 use crate::profile::store::ProfileStore;
 use crate::profile::Profile;
@@ -1369,15 +1369,7 @@ fn judge_unit(
         // The report shows the flags and reasons, never the written budget.
         match assess_without_budget(profile, &to_reading(row), &setup, rules) {
             Ok(a) => {
-                // With a cell shorted the reading lies below the curve for the
-                // whole unit and says nothing of its charge: a 0 % would read
-                // as a flat battery. The flag's detail gives the charge of the
-                // cells that are left. A voltage that no cell count explains
-                // (a probe off the post, the wrong battery) says nothing
-                // either, unless a hydrometer reading gave the charge.
-                let no_charge = a.has(FlagCode::SuspectShortedCell)
-                    || (a.soc_basis == "volts" && a.voltage_discredited());
-                if !no_charge {
+                if !a.charge_unknown() {
                     soc = Some(round(a.soc_percent, 1));
                     interval = Some([
                         round(a.soc_interval_percent[0], 1),
