@@ -31,7 +31,7 @@ use super::charts::{
 use super::{
     actions_present, caution_actions, evidence, float_current_text, float_soc_status,
     float_temp_spread_text, float_unit_reading, float_units_flagged, float_units_note, location,
-    needing_action, report_cautions, FleetFormat, ReportContext, FLOAT_INTRO,
+    needing_action, plural, report_cautions, FleetFormat, ReportContext, FLOAT_INTRO,
 };
 use crate::correct::Action;
 use crate::fleet::analysis::{FleetReport, UnitReport};
@@ -170,10 +170,6 @@ fn figure(h: &mut String, svg: String, caption: &str) {
         inline(svg),
         escape(caption)
     );
-}
-
-fn plural(n: usize, one: &str, many: &str) -> String {
-    format!("{n} {}", if n == 1 { one } else { many })
 }
 
 fn median(values: &mut [f64]) -> f64 {
@@ -543,8 +539,8 @@ fn strings(h: &mut String, report: &FleetReport) {
         let f = frame(
             format!("String {st} at {site}: rest voltage per cell"),
             format!(
-                "Rest voltage per cell referred to 25 °C of the {} units of string {st} at {site}, in position order, with the string median{}.",
-                units.len(),
+                "Rest voltage per cell referred to 25 °C of the {} of string {st} at {site}, in position order, with the string median{}.",
+                plural(units.len(), "unit", "units"),
                 if outliers.is_empty() {
                     String::new()
                 } else {
@@ -731,8 +727,8 @@ fn freezing(h: &mut String, report: &FleetReport, ctx: &ReportContext) {
         let f = frame(
             format!("Temperature against state of charge: {id}"),
             format!(
-                "Latest temperature against state of charge of the {} units of profile {id} that have both, with the electrolyte's freezing point over 0–100 %{}.",
-                points.len(),
+                "Latest temperature against state of charge of the {} of profile {id} that have both, with the electrolyte's freezing point over 0–100 %{}.",
+                plural(points.len(), "unit", "units"),
                 if flagged.is_empty() {
                     String::new()
                 } else {

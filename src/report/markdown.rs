@@ -56,8 +56,8 @@ impl FleetFormat for Markdown {
             });
         let _ = writeln!(
             m,
-            "Period {period} · {} units · generated {} · profiles: {}\n",
-            s.units,
+            "Period {period} · {} · generated {} · profiles: {}\n",
+            super::plural(s.units, "unit", "units"),
             escape(&ctx.generated_at),
             escape(&s.profiles.join(", "))
         );

@@ -405,6 +405,11 @@ pub(crate) fn evidence(u: &UnitReport) -> Vec<(&'static str, String)> {
     out
 }
 
+/// `n` and the noun that goes with it: "1 unit", "2 units".
+pub(crate) fn plural(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
 /// `text` cut to at most `max` characters, ending in "…" when cut.
 pub(crate) fn truncate(text: &str, max: usize) -> String {
     if text.chars().count() <= max {
@@ -513,6 +518,23 @@ mod tests {
             // The healthy blocks have no line of their own in the float section.
             assert!(!out.contains("E1 #1") && !out.contains("| E1 | 1 |"), "{k}");
         }
+    }
+
+    #[test]
+    fn a_fleet_of_one_unit_is_one_unit_in_every_heading() {
+        let text =
+            b"unit_id,taken_at,profile,volts,temp_c,rest_h\nA1,2026-03-01 10:00,agm,12.70,25,24\n";
+        let (report, store) = fixture::report_of("one.csv", text);
+        let ctx = fixture::ctx(&store);
+        for (kind, want) in [
+            (FormatKind::Table, "; 1 unit; generated"),
+            (FormatKind::Markdown, " · 1 unit · generated"),
+        ] {
+            let out = render(kind, &report, &ctx);
+            assert!(out.contains(want), "{kind:?}: {out}");
+        }
+        assert_eq!(plural(2, "unit", "units"), "2 units");
+        assert_eq!(plural(0, "unit", "units"), "0 units");
     }
 
     #[test]

@@ -143,8 +143,8 @@ impl FleetFormat for Table {
                 format!("{a} to {b}")
             });
         o.line(&format!(
-            "Period {period}; {} units; generated {}",
-            s.units,
+            "Period {period}; {}; generated {}",
+            super::plural(s.units, "unit", "units"),
             clean(&ctx.generated_at)
         ));
         o.line(&format!("Profiles: {}", clean(&s.profiles.join(", "))));
