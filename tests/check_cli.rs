@@ -189,28 +189,38 @@ fn a_fraction_of_a_volt_is_a_connection_fault() {
 /// battery's, the safe assumption (common practice).
 #[test]
 fn a_reading_that_says_nothing_of_the_charge_shows_no_percentage() {
-    for volts in ["10.55", "0.3", "-12.6"] {
+    let line = |text: &str, start: &str| {
+        text.lines()
+            .find(|l| l.starts_with(start))
+            .unwrap_or("")
+            .to_string()
+    };
+    // A shorted cell, a probe off the post, reversed leads, and a charger
+    // still on (far above any rest voltage, which the curve clamps to full).
+    let mut freezing = Vec::new();
+    for volts in ["10.55", "0.3", "-12.6", "13.2"] {
         let r = run(&["check", "--volts", volts, "--temp", "25C", "--rest", "24h"]);
-        let charge = r
-            .stdout
-            .lines()
-            .find(|l| l.starts_with("Charge "))
-            .unwrap_or("");
         assert_eq!(
-            charge, "Charge  not known: this reading says nothing of it",
+            line(&r.stdout, "Charge "),
+            "Charge  not known: this reading says nothing of it",
             "{volts} V:\n{}",
             r.stdout
         );
-        assert!(r.stdout.contains("if flat"), "{volts} V:\n{}", r.stdout);
+        freezing.push(line(&r.stdout, "Freezes near"));
     }
+    // The freezing point given is the flat battery's, the same for all.
+    assert!(
+        freezing
+            .iter()
+            .all(|f| f.ends_with("°C if flat") && *f == freezing[0]),
+        "{freezing:?}"
+    );
     let r = run(&[
         "check", "--volts", "12.45", "--temp", "25C", "--rest", "24h",
     ]);
     assert!(
-        r.stdout
-            .lines()
-            .any(|l| l.starts_with("Charge  ") && l.contains(" %  (95 %: "))
-            && r.stdout.contains("at this charge"),
+        line(&r.stdout, "Charge ").contains(" %  (95 %: ")
+            && line(&r.stdout, "Freezes near").ends_with("at this charge"),
         "{}",
         r.stdout
     );

@@ -4,6 +4,7 @@ use super::{output, CliError, CmdResult};
 use crate::correct::{assess, Action, After, Assessment, Reading, Setup};
 use crate::electrolyte::HydrometerRule;
 use crate::profile::store::ProfileStore;
+use crate::profile::Profile;
 use crate::rules::Rules;
 use crate::safety::caution_text;
 use crate::units::{self, Celsius, Hours, Kelvins, MeterAccuracy, SpecificGravity, Volts};
@@ -352,13 +353,7 @@ pub fn run(args: CheckArgs, store: &ProfileStore) -> CmdResult {
             s.push('\n');
             s
         }
-        OneFormat::Text => render_text(
-            &a,
-            &setup,
-            profile.spec.name.as_str(),
-            now,
-            output::stdout_columns(),
-        ),
+        OneFormat::Text => render_text(&a, &setup, profile, now, output::stdout_columns()),
     };
     output::emit(None, text.as_bytes(), &[])?;
     Ok(0)
@@ -436,7 +431,7 @@ pub fn gauge(soc: f64, interval: [f64; 2]) -> String {
 pub fn render_text(
     a: &Assessment,
     setup: &Setup,
-    profile_name: &str,
+    profile: &Profile,
     now: chrono::NaiveDateTime,
     width_columns: usize,
 ) -> String {
@@ -444,7 +439,7 @@ pub fn render_text(
         output::wrap_hanging(lead, text, indent, width_columns)
     };
     let mut s = String::new();
-    let _ = writeln!(s, "{}  ({} cells)", profile_name, a.cells);
+    let _ = writeln!(s, "{}  ({} cells)", profile.spec.name, a.cells);
     let unknown = a.charge_unknown();
     if unknown {
         // As the fleet report does: no number that would read as a charge.
@@ -488,10 +483,15 @@ pub fn render_text(
     if let Some(at) = remeasure_at(a, now) {
         let _ = writeln!(s, "        measure again at {at}");
     }
-    if let Some(fp) = a.freezing_point_celsius {
-        // Worked out at the clamped charge, the lowest: what a flat battery
-        // would do, the safe assumption when the charge is not known.
-        let at = if unknown { "if flat" } else { "at this charge" };
+    // With the charge not known, the safe figure is a flat battery's (the
+    // highest freezing point), not the one at the charge the curve clamped
+    // to, which for a voltage above the curve is a full battery's.
+    let freezing = if unknown {
+        profile.warmest_freezing_point().map(|c| (c.0, "if flat"))
+    } else {
+        a.freezing_point_celsius.map(|c| (c, "at this charge"))
+    };
+    if let Some((fp, at)) = freezing {
         let _ = writeln!(s, "Freezes near {fp:.0} °C {at}");
     }
     if !a.flags.is_empty() {
