@@ -840,10 +840,8 @@ struct Interner {
 
 impl Interner {
     fn get(&mut self, s: &str) -> Arc<str> {
-        if let Some(last) = &self.last {
-            if **last == *s {
-                return last.clone();
-            }
+        if let Some(last) = self.last_if(s) {
+            return last;
         }
         let a = match self.set.get(s) {
             Some(a) => a.clone(),
@@ -866,14 +864,17 @@ impl Interner {
     /// up in it (a cache miss on a table of 50,000 names, another on the
     /// name) cost more than a new name does (8 % of a time-sorted run).
     fn get_recent(&mut self, s: &str) -> Arc<str> {
-        if let Some(last) = &self.last {
-            if **last == *s {
-                return last.clone();
-            }
+        if let Some(last) = self.last_if(s) {
+            return last;
         }
         let a: Arc<str> = Arc::from(s);
         self.last = Some(a.clone());
         a
+    }
+
+    /// The last name given, if it is `s`.
+    fn last_if(&self, s: &str) -> Option<Arc<str>> {
+        self.last.as_ref().filter(|last| ***last == *s).cloned()
     }
 }
 
