@@ -8,7 +8,10 @@
 //! `peer_z`, `ohmic_rise_percent`, `coldest_celsius`,
 //! `freezing_point_celsius`, `heat_ageing_factor`, `readings`, `latest_at`.
 //! An unknown value is an empty field. Numbers use a decimal point and as
-//! many decimals as the analysis kept.
+//! many decimals as the analysis kept. A name from the input (unit id, site,
+//! string) that begins with `=`, `+`, `-`, `@`, a tab or a carriage return
+//! is written after a `'`, so that a spreadsheet shows it as text instead of
+//! running it as a formula (the OWASP "CSV Injection" guidance, published).
 
 use super::{FleetFormat, ReportContext};
 use crate::fleet::analysis::FleetReport;
@@ -45,6 +48,16 @@ pub const COLUMNS: [&str; 24] = [
     "latest_at",
 ];
 
+/// A name from the input as a spreadsheet should see it: as text, never as
+/// a formula (see the module's comment).
+fn text(name: &str) -> String {
+    if name.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+        format!("'{name}")
+    } else {
+        name.to_string()
+    }
+}
+
 fn num(v: Option<f64>) -> String {
     v.filter(|x| x.is_finite())
         .map(|x| x.to_string())
@@ -77,9 +90,9 @@ impl FleetFormat for Csv {
             let rules: Vec<&str> = u.reasons.iter().map(|r| r.rule.as_str()).collect();
             let record: [String; 24] = [
                 u.rank.to_string(),
-                u.unit_id.clone(),
-                u.site.clone().unwrap_or_default(),
-                u.string.clone().unwrap_or_default(),
+                text(&u.unit_id),
+                u.site.as_deref().map(text).unwrap_or_default(),
+                u.string.as_deref().map(text).unwrap_or_default(),
                 u.position.map(|p| p.to_string()).unwrap_or_default(),
                 u.profile.clone(),
                 u.action.as_str().to_string(),
@@ -124,6 +137,33 @@ mod tests {
     fn out() -> (String, FleetReport) {
         let (report, store) = fixture::report();
         (Csv.render(&report, &fixture::ctx(&store)), report)
+    }
+
+    /// OWASP "CSV Injection" (published): a cell that begins with `=`, `+`,
+    /// `-` or `@` (or a tab or carriage return) is read as a formula by
+    /// spreadsheets; names from the input are written as text.
+    #[test]
+    fn names_that_a_spreadsheet_would_run_are_written_as_text() {
+        let csv_in = "unit_id,taken_at,profile,site,string,volts,temp_c,rest_h\n\
+            \"=HYPERLINK(\"\"http://x\"\")\",2026-03-01 10:00,agm,@north,-S1,12.7,25,24\n\
+            +B2,2026-03-01 10:00,agm,south,S2,12.7,25,24\n\
+            C-3,2026-03-01 10:00,agm,east,S3,12.7,25,24\n";
+        let (report, store) = fixture::report_of("in.csv", csv_in.as_bytes());
+        let text = Csv.render(&report, &fixture::ctx(&store));
+        let mut r = ::csv::Reader::from_reader(text.as_bytes());
+        let rows: Vec<Vec<String>> = r
+            .records()
+            .map(|rec| rec.unwrap().iter().take(4).map(str::to_string).collect())
+            .collect();
+        let find = |id: &str| rows.iter().find(|row| row[1] == id).cloned();
+        let a = find("'=HYPERLINK(\"http://x\")").expect("the formula id, as text");
+        assert_eq!((a[2].as_str(), a[3].as_str()), ("'@north", "'-S1"));
+        assert!(find("'+B2").is_some());
+        // A name that only holds such a character further on is left as it is.
+        assert_eq!(
+            find("C-3").map(|row| row[2].clone()).as_deref(),
+            Some("east")
+        );
     }
 
     #[test]
