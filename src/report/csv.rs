@@ -9,9 +9,10 @@
 //! `freezing_point_celsius`, `heat_ageing_factor`, `readings`, `latest_at`.
 //! An unknown value is an empty field. Numbers use a decimal point and as
 //! many decimals as the analysis kept. A name from the input (unit id, site,
-//! string) that begins with `=`, `+`, `-`, `@`, a tab or a carriage return
-//! is written after a `'`, so that a spreadsheet shows it as text instead of
-//! running it as a formula (the OWASP "CSV Injection" guidance, published).
+//! string) that begins with `=`, `+`, `-`, `@`, a tab, a carriage return or
+//! a NUL is written after a `'`, so that a spreadsheet shows it as text
+//! instead of running it as a formula (OWASP ASVS 5.0 requirement 1.2.10 and
+//! CWE-1236, published).
 
 use super::{FleetFormat, ReportContext};
 use crate::fleet::analysis::FleetReport;
@@ -51,7 +52,7 @@ pub const COLUMNS: [&str; 24] = [
 /// A name from the input as a spreadsheet should see it: as text, never as
 /// a formula (see the module's comment).
 fn text(name: &str) -> String {
-    if name.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+    if name.starts_with(['=', '+', '-', '@', '\t', '\r', '\0']) {
         format!("'{name}")
     } else {
         name.to_string()
@@ -139,9 +140,10 @@ mod tests {
         (Csv.render(&report, &fixture::ctx(&store)), report)
     }
 
-    /// OWASP "CSV Injection" (published): a cell that begins with `=`, `+`,
-    /// `-` or `@` (or a tab or carriage return) is read as a formula by
-    /// spreadsheets; names from the input are written as text.
+    /// OWASP ASVS 5.0 requirement 1.2.10 and CWE-1236 (published): a cell
+    /// that begins with `=`, `+`, `-` or `@` (or a tab, a carriage return or a
+    /// NUL) is read as a formula by spreadsheets, and is to be written after
+    /// a single quote; names from the input are.
     #[test]
     fn names_that_a_spreadsheet_would_run_are_written_as_text() {
         let csv_in = "unit_id,taken_at,profile,site,string,volts,temp_c,rest_h\n\
