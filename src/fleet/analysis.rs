@@ -6,7 +6,7 @@ use super::ingest::{
     ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
     Rejected,
 };
-use super::shards::{shard_of, with_summary, SharedUnits, SHARDS};
+use super::shards::{add_to, shard_of, with_summary, SharedUnits, SHARDS};
 use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
     assess_without_budget, estimate, Action, After, Reading, Reason, RestStatus, Setup,
@@ -418,20 +418,6 @@ impl ChunkFold {
     }
 }
 
-/// Fold a row with its facts into its unit's summary in `units`.
-fn add_to(units: &mut UnitMap, row: FleetRow, facts: RowFacts) {
-    // Look the unit up by its name before cloning the name for a new entry:
-    // a clone is an atomic count, and nearly every row is of a unit already
-    // there.
-    match units.get_mut(&*row.unit_id) {
-        Some(s) => s.add(row, facts),
-        None => {
-            let id = Arc::clone(&row.unit_id);
-            units.entry(id).or_default().add(row, facts)
-        }
-    }
-}
-
 /// Rejected rows as an input is read: every one counted, at most twice
 /// [`REJECTED_CAP`] held (the first [`REJECTED_CAP`] by (file, line, reason)
 /// survive every trim), so that a file of mostly bad rows is read in memory
@@ -573,6 +559,12 @@ impl From<Reason> for FleetReason {
     }
 }
 
+impl From<&Reason> for FleetReason {
+    fn from(r: &Reason) -> FleetReason {
+        FleetReason::from(r.clone())
+    }
+}
+
 impl FleetReason {
     /// `r`, its source made shared text by `share`.
     fn with_source(r: Reason, share: impl FnOnce(String) -> Arc<str>) -> FleetReason {
@@ -624,12 +616,6 @@ impl SharedTexts {
             detail,
             source: self.get(&rules.source(rule)),
         }
-    }
-}
-
-impl From<&Reason> for FleetReason {
-    fn from(r: &Reason) -> FleetReason {
-        FleetReason::from(r.clone())
     }
 }
 
@@ -864,12 +850,9 @@ fn overview(
     Overview {
         float_strings,
         float_findings,
-        period: first.zip(last).map(|(f, l)| {
-            [
-                f.format("%Y-%m-%d %H:%M").to_string(),
-                l.format("%Y-%m-%d %H:%M").to_string(),
-            ]
-        }),
+        period: first
+            .zip(last)
+            .map(|(f, l)| [minute_text(f), minute_text(l)]),
         profiles,
         duplicate_readings,
         short_rest_readings,
@@ -922,9 +905,9 @@ pub const PARALLEL_JUDGING_UNITS: usize = 4096;
 /// Units in a run that a judging thread takes at a time.
 const JUDGING_RUN_UNITS: usize = 1024;
 
-/// [`finish_owned`] with the units judged on up to `threads` threads, each
-/// taking a contiguous run of them; the report is the same on any number of
-/// threads (tested).
+/// [`finish_owned`] with the units judged on up to `threads` threads, which
+/// take contiguous runs of them in turn; the report is the same on any
+/// number of threads (tested).
 pub fn finish_owned_on(
     state: FleetState,
     store: &ProfileStore,
@@ -1021,19 +1004,19 @@ pub fn finish_owned_on(
     // the emptied state, the float checks and the rules across the judged
     // units. One after the other they were over a third of finishing a
     // 50,000-unit fleet with every core but one idle.
+    let mut texts = SharedTexts::default();
     let (overview, touched) = if threads == 1 {
         drop(state);
         let overview = overview(counts, on_float, totals, store, rules);
         (
             overview,
-            peer_and_string_rules(&mut judged, store, rules, &mut SharedTexts::default()),
+            peer_and_string_rules(&mut judged, store, rules, &mut texts),
         )
     } else {
         std::thread::scope(|scope| {
             scope.spawn(move || drop(state));
             let float = scope.spawn(move || overview(counts, on_float, totals, store, rules));
-            let touched =
-                peer_and_string_rules(&mut judged, store, rules, &mut SharedTexts::default());
+            let touched = peer_and_string_rules(&mut judged, store, rules, &mut texts);
             let overview = float
                 .join()
                 .unwrap_or_else(|e| std::panic::resume_unwind(e));

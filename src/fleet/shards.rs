@@ -3,7 +3,8 @@
 //! its own, so that each thread folds its rows in itself.
 
 use super::analysis::UnitMap;
-use super::summary::UnitSummary;
+use super::ingest::FleetRow;
+use super::summary::{RowFacts, UnitSummary};
 use std::hash::BuildHasher;
 use std::sync::{Arc, Mutex, MutexGuard};
 
@@ -23,6 +24,19 @@ pub(super) fn with_summary<T>(
     match units.get_mut(&**id) {
         Some(s) => f(s),
         None => f(units.entry(Arc::clone(id)).or_default()),
+    }
+}
+
+/// Fold a row with its facts into its unit's summary in `units`, looked up
+/// by name first as [`with_summary`] does (here the row, which the summary
+/// takes, lends the name).
+pub(super) fn add_to(units: &mut UnitMap, row: FleetRow, facts: RowFacts) {
+    match units.get_mut(&*row.unit_id) {
+        Some(s) => s.add(row, facts),
+        None => {
+            let id = Arc::clone(&row.unit_id);
+            units.entry(id).or_default().add(row, facts)
+        }
     }
 }
 
