@@ -440,3 +440,59 @@ fn a_generated_span_past_today_is_noted() {
         "{note}"
     );
 }
+
+#[test]
+fn a_cold_unit_whose_voltage_says_nothing_is_warned_of_freezing_as_if_flat() {
+    // 15.9 V on a 6-cell block is above any rest voltage: the charge is not
+    // known, so the fleet, like `check`, gives a flat battery's freezing
+    // point and, in the cold, the freeze risk (a flat electrolyte, SG about
+    // 1.100–1.150, freezes between about −7 and −15 °C: US Army TM 5-1185
+    // Table III, published), without acting on a charge it does not know.
+    let d = tmp();
+    let file = d.path().join("cold.csv");
+    std::fs::write(
+        &file,
+        "unit_id,profile,taken_at,volts,temp_c,rest_h,after\n\
+         YARD-7,flooded-automotive,2026-01-10 07:30,12.71,-4,30,idle\n\
+         YARD-7,flooded-automotive,2026-02-10 07:30,15.90,-20,30,idle\n",
+    )
+    .unwrap();
+    let out = restvolt()
+        .args(["fleet", "--format", "json"])
+        .arg(&file)
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let u = unit(&v, "YARD-7");
+    let f = flags(u);
+    assert!(f.contains(&"check-connection".to_string()), "{f:?}");
+    assert!(f.contains(&"freeze-risk".to_string()), "{f:?}");
+    assert_eq!(u["action"], "remeasure");
+    assert!(u["soc_percent"].is_null());
+    let fleet_fp = u["freezing_point_celsius"].as_f64().unwrap();
+    assert!((-18.0..=-4.0).contains(&fleet_fp), "{fleet_fp}");
+    let check = common::json(&[
+        "check",
+        "--profile",
+        "flooded-automotive",
+        "--volts",
+        "15.9",
+        "--temp=-20C",
+        "--rest",
+        "30h",
+        "--format",
+        "json",
+    ]);
+    let check_fp = check["freezing_point_celsius"].as_f64().unwrap();
+    assert!(
+        (check_fp - fleet_fp).abs() < 0.051,
+        "{check_fp} vs {fleet_fp}"
+    );
+    assert!(common::flags(&check).contains(&"freeze-risk".to_string()));
+}

@@ -483,15 +483,10 @@ pub fn render_text(
     if let Some(at) = remeasure_at(a, now) {
         let _ = writeln!(s, "        measure again at {at}");
     }
-    // With the charge not known, the safe figure is a flat battery's (the
-    // highest freezing point), not the one at the charge the curve clamped
-    // to, which for a voltage above the curve is a full battery's.
-    let freezing = if unknown {
-        profile.warmest_freezing_point().map(|c| (c.0, "if flat"))
-    } else {
-        a.freezing_point_celsius.map(|c| (c, "at this charge"))
-    };
-    if let Some((fp, at)) = freezing {
+    // With the charge not known, the figure is a flat battery's (see
+    // `Assessment::freezing_point_celsius`).
+    let at = if unknown { "if flat" } else { "at this charge" };
+    if let Some(fp) = a.freezing_point_celsius {
         let _ = writeln!(s, "Freezes near {fp:.0} °C {at}");
     }
     if !a.flags.is_empty() {

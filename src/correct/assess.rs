@@ -389,7 +389,8 @@ pub struct Assessment {
     pub action: Action,
     /// Reasons, most urgent first; the first one's action is the action.
     pub reasons: Vec<Reason>,
-    /// Electrolyte freezing point at this state of charge.
+    /// Electrolyte freezing point at this state of charge; when the charge is
+    /// not known ([`Assessment::charge_unknown`]), a flat battery's.
     pub freezing_point_celsius: Option<f64>,
     /// Cautions for the work the action involves.
     pub cautions: Vec<Caution>,
@@ -418,9 +419,15 @@ impl Assessment {
     /// wrong battery) says nothing either, unless a hydrometer reading gave
     /// the charge.
     pub fn charge_unknown(&self) -> bool {
-        self.has(FlagCode::SuspectShortedCell)
-            || (self.soc_basis == "volts" && self.voltage_discredited())
+        charge_unknown(self.soc_basis, |c| self.has(c))
     }
+}
+
+/// [`Assessment::charge_unknown`] from the basis of the charge and the flags
+/// raised (`has`), for the assessment and for the corrector's own freeze check.
+fn charge_unknown(basis: &str, has: impl Fn(FlagCode) -> bool) -> bool {
+    has(FlagCode::SuspectShortedCell)
+        || (basis == "volts" && FlagCode::DISCREDIT_VOLTAGE.into_iter().any(has))
 }
 
 /// A reading that cannot be assessed at all.
@@ -581,15 +588,28 @@ fn core(
     let may_freeze = profile
         .warmest_freezing_point()
         .map_or(true, |warmest| coldest.0 <= warmest.0 + margin);
-    let freezing = may_freeze
-        .then(|| profile.freezing_point_at(SocPercent(interval[0])).ok())
-        .flatten();
-    if let Some(fp_low) = freezing {
-        if coldest.0 <= fp_low.0 + margin {
+    // A voltage no cell count explains says nothing of the charge, and its
+    // interval is the clamped charge's, which above the curve is a full
+    // battery's: the safe assumption is a flat one (the highest freezing
+    // point), since nothing here rules it out. (A shorted cell's voltage lies
+    // below the curve, where the clamp already gives a flat battery.)
+    let says_nothing = basis == "volts"
+        && (flags.has(FlagCode::CheckConnection) || flags.has(FlagCode::WrongCellCount));
+    if may_freeze && says_nothing {
+        if let Some(fp_flat) = profile.warmest_freezing_point() {
             flags.add(FlagCode::FreezeRisk, || format!(
-                    "{:.0} °C expected; the electrolyte freezes near {:.0} °C at {:.0} % (margin {margin} °C)",
-                    coldest.0, fp_low.0, interval[0]
+                    "{:.0} °C expected and the charge is not known; a flat battery's electrolyte freezes near {:.0} °C (margin {margin} °C)",
+                    coldest.0, fp_flat.0
                 ));
+        }
+    } else if may_freeze {
+        if let Ok(fp_low) = profile.freezing_point_at(SocPercent(interval[0])) {
+            if coldest.0 <= fp_low.0 + margin {
+                flags.add(FlagCode::FreezeRisk, || format!(
+                        "{:.0} °C expected; the electrolyte freezes near {:.0} °C at {:.0} % (margin {margin} °C)",
+                        coldest.0, fp_low.0, interval[0]
+                    ));
+            }
         }
     }
 
@@ -708,7 +728,14 @@ fn assess_with(
     let frozen = flags.has(FlagCode::FreezeRisk);
     let flags = flags.list;
     let mut reasons = Vec::new();
-    let freezing = profile.freezing_point_at(SocPercent(soc)).ok();
+    // With the charge not known, the safe figure is a flat battery's (the
+    // highest freezing point), not the one at the charge the curve clamped
+    // to, which for a voltage above the curve is a full battery's.
+    let freezing = if charge_unknown(basis, |c| flags.iter().any(|f| f.code == c)) {
+        profile.warmest_freezing_point()
+    } else {
+        profile.freezing_point_at(SocPercent(soc)).ok()
+    };
     decide(profile, soc, interval, &rest, &flags, rules, &mut reasons);
     reasons.sort_by_key(|r| r.action);
     let action = reasons
@@ -1141,6 +1168,16 @@ fn decide(
             f.detail.clone(),
             "common practice: a reading that no cell count explains is a measurement fault",
         ));
+        // No charge to act on, but the cold still matters to whoever measures
+        // again, and perhaps connects a charger.
+        if let Some(f) = has(FlagCode::FreezeRisk) {
+            reasons.push(reason(
+                Action::Remeasure,
+                f.code.as_str(),
+                format!("{}: before any charging, look for ice or a bulging case, and never charge a frozen battery", f.detail),
+                "published: freezing points by SG, US Army TM 5-1185 Table III; never charge a frozen battery (US Army OD1002)",
+            ));
+        }
         return;
     }
     if let Some(f) = has(FlagCode::SuspectShortedCell) {

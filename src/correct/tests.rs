@@ -183,6 +183,49 @@ fn freeze_risk_at_low_charge_in_the_cold() {
 }
 
 #[test]
+fn a_voltage_that_says_nothing_of_the_charge_is_judged_for_freezing_as_a_flat_battery() {
+    // 15.9 V on a 6-cell block is above any rest voltage (a charger still on,
+    // or the wrong battery): the curve clamps it to full, whose electrolyte
+    // freezes far below −25 °C. Nothing rules out a flat battery, whose
+    // electrolyte (SG about 1.100–1.150) freezes between about −7 and −15 °C
+    // (published: US Army TM 5-1185 Table III, ±3 °C as REFERENCES §3 checks).
+    let p = profile("flooded-automotive");
+    let flat = p.warmest_freezing_point().unwrap().0;
+    assert!((-18.0..=-4.0).contains(&flat), "{flat}");
+    let cold = run(&p, &rested(15.9, -25.0));
+    assert!(cold.charge_unknown(), "{:?}", cold.flags);
+    assert!(cold.has(FlagCode::FreezeRisk), "{:?}", cold.flags);
+    assert_eq!(cold.freezing_point_celsius, Some(flat));
+    // The reading is still to be taken again, not acted on: the freeze reason
+    // asks for the checks before any charging, and the frozen-battery caution
+    // shows (never charge a frozen battery: US Army OD1002, published).
+    assert_eq!(cold.action, Action::Remeasure);
+    let freeze = cold
+        .reasons
+        .iter()
+        .find(|r| r.rule == "freeze-risk")
+        .unwrap();
+    assert_eq!(freeze.action, Action::Remeasure);
+    assert!(
+        freeze.detail.contains("never charge a frozen battery"),
+        "{}",
+        freeze.detail
+    );
+    assert!(cold.cautions.contains(&crate::safety::Caution::Frozen));
+    // The same reading in the warm raises nothing about freezing, but still
+    // gives the flat battery's freezing point, not the full one's.
+    let warm = run(&p, &rested(15.9, 20.0));
+    assert!(!warm.has(FlagCode::FreezeRisk), "{:?}", warm.flags);
+    assert_eq!(warm.freezing_point_celsius, Some(flat));
+    // A sound full reading at −25 °C is not at risk (a charged electrolyte
+    // freezes near −52 °C or lower: TM 5-1185 Table III, SG 1.250).
+    let full = run(&p, &rested(12.7, -25.0));
+    assert!(!full.charge_unknown());
+    assert!(!full.has(FlagCode::FreezeRisk), "{:?}", full.flags);
+    assert!(full.freezing_point_celsius.unwrap() < -45.0);
+}
+
+#[test]
 fn float_voltage_is_never_a_state_of_charge() {
     let p = profile("flooded-automotive");
     let mut r = rested(13.5, 25.0);
