@@ -340,7 +340,24 @@ impl UnitSummary {
             // Rows mostly arrive in time order, so this runs for nearly every
             // row: reuse the box rather than allocate one each time.
             match &mut self.latest_row {
-                Some(kept) => **kept = row,
+                Some(kept) => {
+                    // The kept row's own allocations (the id, the SG list),
+                    // made when the unit was first seen, stay, holding the
+                    // new row's contents; the new row's, made just now among
+                    // rows that are about to be freed, go. Kept instead, one
+                    // live id and list per unit scattered through every
+                    // reading thread's pages held those pages: a file sorted
+                    // by time peaked higher the more threads read it.
+                    let mut row = row;
+                    // The same name: both rows are this unit's.
+                    std::mem::swap(&mut row.unit_id, &mut kept.unit_id);
+                    if kept.sg.capacity() >= row.sg.len() {
+                        kept.sg.clear();
+                        kept.sg.extend_from_slice(&row.sg);
+                        row.sg = std::mem::take(&mut kept.sg);
+                    }
+                    **kept = row;
+                }
                 None => self.latest_row = Some(Box::new(row)),
             }
         }

@@ -411,3 +411,47 @@ fn judging_on_several_threads_gives_the_same_report() {
         assert_same(&got, &want, &format!("{threads} threads"));
     }
 }
+
+#[test]
+fn a_newer_row_is_kept_in_the_allocations_of_the_row_it_replaces() {
+    // Memory, not output: each unit keeps the id and SG list it was first
+    // seen with, holding the newest row's contents, so that a file sorted by
+    // time leaves no live per-row allocation scattered among freed ones.
+    let text = "unit_id,profile,taken_at,volts,sg,temp_c,rest_h,after\n\
+                P-1,flooded-stationary,2026-01-01 08:00,2.10,1.250,20,30,idle\n\
+                P-1,flooded-stationary,2026-02-01 08:00,2.09,1.240,20,30,idle\n\
+                P-1,flooded-stationary,2026-03-01 08:00,2.08,1.230,20,30,idle\n";
+    let mut rows = Vec::new();
+    ingest(
+        "t.csv",
+        text.as_bytes(),
+        &IngestOptions::default(),
+        &mut |r| rows.push(r),
+        &mut |r| panic!("{r:?}"),
+    )
+    .unwrap();
+    assert_eq!(rows.len(), 3);
+    // Each row with an id and an SG list of its own, as rows of a unit far
+    // apart in a file come.
+    for r in &mut rows {
+        r.unit_id = std::sync::Arc::from(&*r.unit_id);
+        r.sg = r.sg.clone();
+    }
+    let first_id = std::sync::Arc::clone(&rows[0].unit_id);
+    let first_sg = rows[0].sg.as_ptr();
+    let mut s = super::summary::UnitSummary::default();
+    for r in rows {
+        let facts = super::summary::RowFacts {
+            soc: None,
+            rested: true,
+            short_rest: false,
+            ageing: None,
+        };
+        s.add(r, facts);
+    }
+    let (_, kept) = s.latest().unwrap();
+    assert_eq!(kept.taken_at.to_string(), "2026-03-01 08:00:00");
+    assert_eq!(kept.sg, vec![crate::units::SpecificGravity(1.230)]);
+    assert!(std::sync::Arc::ptr_eq(&kept.unit_id, &first_id));
+    assert_eq!(kept.sg.as_ptr(), first_sg);
+}
