@@ -454,7 +454,8 @@ fn a_cold_unit_whose_voltage_says_nothing_is_warned_of_freezing_as_if_flat() {
         &file,
         "unit_id,profile,taken_at,volts,temp_c,rest_h,after\n\
          YARD-7,flooded-automotive,2026-01-10 07:30,12.71,-4,30,idle\n\
-         YARD-7,flooded-automotive,2026-02-10 07:30,15.90,-20,30,idle\n",
+         YARD-7,flooded-automotive,2026-02-10 07:30,15.90,-20,30,idle\n\
+         YARD-8,flooded-automotive,2026-02-10 07:40,12.65,-20,30,idle\n",
     )
     .unwrap();
     let out = restvolt()
@@ -495,4 +496,16 @@ fn a_cold_unit_whose_voltage_says_nothing_is_warned_of_freezing_as_if_flat() {
         "{check_fp} vs {fleet_fp}"
     );
     assert!(common::flags(&check).contains(&"freeze-risk".to_string()));
+    // The HTML page cannot draw it on the freezing chart (no charge), but
+    // names it under the chart.
+    let html = restvolt()
+        .args(["fleet", "--format", "html"])
+        .arg(&file)
+        .output()
+        .unwrap();
+    let page = String::from_utf8_lossy(&html.stdout);
+    assert!(
+        page.contains("at risk of freezing, charge not known (not drawn): YARD-7"),
+        "{page}"
+    );
 }

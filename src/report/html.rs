@@ -724,15 +724,30 @@ fn freezing(h: &mut String, report: &FleetReport, ctx: &ReportContext) {
             .filter(|p| p.flagged)
             .map(|p| p.label.as_str())
             .collect();
+        // At risk, but with no charge to draw them at (a reading that says
+        // nothing of it is judged as a flat battery): named all the same.
+        let unknown: Vec<&str> = units
+            .iter()
+            .filter(|u| u.soc_percent.is_none() && u.flags.iter().any(|f| f == "freeze-risk"))
+            .map(|u| u.unit_id.as_str())
+            .collect();
         let f = frame(
             format!("Temperature against state of charge: {id}"),
             format!(
-                "Latest temperature against state of charge of the {} of profile {id} that have both, with the electrolyte's freezing point over 0–100 %{}.",
+                "Latest temperature against state of charge of the {} of profile {id} that have both, with the electrolyte's freezing point over 0–100 %{}{}.",
                 plural(points.len(), "unit", "units"),
                 if flagged.is_empty() {
                     String::new()
                 } else {
                     format!("; at risk of freezing: {}", flagged.join(", "))
+                },
+                if unknown.is_empty() {
+                    String::new()
+                } else {
+                    format!(
+                        "; at risk of freezing, charge not known (not drawn): {}",
+                        unknown.join(", ")
+                    )
                 }
             ),
             axis("State of charge (%)", Some(0.0), Some(100.0)),
