@@ -274,6 +274,31 @@ pub fn parse_temperature(raw: &str) -> Result<Celsius, UnitError> {
     }
 }
 
+/// A number from the input, for a message that refuses it: as written
+/// normally, unless it is so large or so small that it would run to hundreds
+/// of digits (`1e300` written out is 301), then in scientific notation to
+/// four significant digits. A
+/// precision (`{:.1}`) applies to the normal form.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Shown(pub f64);
+
+impl fmt::Display for Shown {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let v = self.0;
+        if v.is_finite() && v != 0.0 && !(1e-6..1e9).contains(&v.abs()) {
+            // Four significant digits, trailing zeros dropped: 1e300, 1.667e299.
+            let text = format!("{v:.3e}");
+            let (mantissa, exponent) = text.split_once('e').unwrap_or((&text, "0"));
+            let mantissa = mantissa.trim_end_matches('0').trim_end_matches('.');
+            write!(f, "{mantissa}e{exponent}")
+        } else if let Some(p) = f.precision() {
+            write!(f, "{v:.p$}")
+        } else {
+            write!(f, "{v}")
+        }
+    }
+}
+
 /// Parse a rest duration: `40m`, `6h`, `2d`, `1h30m`, `90min`, `1.5h`, or
 /// `unknown` (returns `None`). A bare number is refused.
 pub fn parse_duration(raw: &str) -> Result<Option<Hours>, UnitError> {
@@ -397,6 +422,24 @@ pub fn parse_meter(raw: &str) -> Result<MeterAccuracy, UnitError> {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn numbers_in_messages_are_short_however_large() {
+        let shown = |v: f64| Shown(v).to_string();
+        assert_eq!(shown(12.45), "12.45");
+        assert_eq!(shown(-300.0), "-300");
+        assert_eq!(shown(0.0), "0");
+        assert_eq!(shown(999_999_999.0), "999999999");
+        assert_eq!(shown(1e9), "1e9");
+        assert_eq!(shown(1e300), "1e300");
+        assert_eq!(shown(-2.5e-9), "-2.5e-9");
+        assert_eq!(shown(1e300 / 6.0), "1.667e299");
+        assert_eq!(shown(f64::NAN), "NaN");
+        assert!(shown(f64::MAX).len() < 30);
+        assert_eq!(format!("{:.1}", Shown(-5.04)), "-5.0");
+        assert_eq!(format!("{:.1}", Shown(1e300)), "1e300");
+    }
+
     use super::*;
     use approx::assert_relative_eq;
 

@@ -50,10 +50,12 @@ fn generated(name: &str) -> Vec<u8> {
             "unit_id,taken_at,profile,volts,note\nA1,2026-03-02 09:00,agm,12.80,{big}\nA2,2026-03-02 09:05,agm,12.75,ok\n"
         )
         .into_bytes(),
+        "fleet-huge-numbers.csv" => b"unit_id,taken_at,profile,volts,temp_c,ohmic_mohm\nA1,2026-03-02 09:00,agm,12.80,20,4.1\nA2,2026-03-02 09:05,agm,1e300,1e300,1e300\n".to_vec(),
         "settle-latin1.csv" => b"minutes,volts,note\n10,12.979,ok\n20,12.962,18\xb0C\n30,12.939,ok\n".to_vec(),
         "settle-utf16.csv" => utf16le("minutes,volts\n10,12.979\n20,12.962\n30,12.939\n"),
         "settle-10mb-field.csv" => format!("minutes,volts\n10,12.979\n20,{big}\n30,12.939\n").into_bytes(),
         "calibrate-latin1.csv" => b"soc_percent,volts,temp_c,note\n20,12.06,25,ok\n50,12.25,25,caf\xe9\n".to_vec(),
+        "calibrate-huge.csv" => b"soc_percent,volts,temp_c\n20,12.06,25\n50,1e300,25\n".to_vec(),
         "calibrate-utf16.csv" => utf16le("soc_percent,volts,temp_c\n20,12.06,25\n50,12.25,25\n"),
         "calibrate-10mb-field.csv" => format!("soc_percent,volts,temp_c\n20,12.06,25\n50,{big},25\n").into_bytes(),
         "calibrate-copy.csv" => std::fs::read(fixture("calibrate-points.csv")).expect("fixture"),
@@ -89,6 +91,23 @@ const CASES: &[Case] = &[
         &["check", "--volts", "1e9"],
         2,
         &["--volts", "not a battery rest voltage", "at most 1000 V"],
+    ),
+    // Absurdly large numbers are echoed in scientific notation, not as
+    // hundreds of digits.
+    case(
+        &["check", "--volts", "1e308"],
+        2,
+        &["--volts: 1e308 V is not a battery rest voltage"],
+    ),
+    case(
+        &["check", "--volts", "12.6", "--temp=1e300C"],
+        2,
+        &["--temp: temperature 1e300 °C is outside the accepted range"],
+    ),
+    case(
+        &["check", "--volts", "12.6", "--sg", "1e300"],
+        2,
+        &["--sg: reading 1 is 1e300:"],
     ),
     case(
         &["check", "--volts", "abc"],
@@ -563,6 +582,15 @@ const CASES: &[Case] = &[
         &["reading 2 at 20 min is not later than reading 1 at 40 min", "time order"],
     ),
     // ---- fleet (run with --format json; see the runner)
+    case(
+        &["fleet", "%fleet-huge-numbers.csv"],
+        3,
+        &[
+            "fleet-huge-numbers.csv:3: column `volts`: 1e300 V is absurd",
+            "column `temp_c`: 1e300 °C is outside",
+            "column `ohmic_mohm`: 1e300 mΩ is not a plausible",
+        ],
+    ),
     case(&["fleet", "@fleet-bom.csv"], 0, &["A1 serviceable", "A3"]),
     case(&["fleet", "@fleet-crlf.csv"], 0, &["A1 serviceable", "A3"]),
     case(&["fleet", "@fleet-semicolon.csv"], 0, &["V1 ", "V2 serviceable"]),
@@ -791,6 +819,11 @@ const CASES: &[Case] = &[
         &["calibrate", "@calibrate-sg-on-agm.csv", "--from", "agm", "--id", "x", "-o", "x.toml"],
         2,
         &["calibrate-sg-on-agm.csv:2: column `sg`", "'agm' is valve-regulated"],
+    ),
+    case(
+        &["calibrate", "%calibrate-huge.csv", "--id", "x", "-o", "x.toml"],
+        2,
+        &["calibrate-huge.csv:3: column `volts`: 1e300 V over 6 cells is 1.667e299 V per cell"],
     ),
     case(
         &["calibrate", "%calibrate-latin1.csv", "--id", "x", "-o", "x.toml"],

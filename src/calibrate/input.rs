@@ -22,7 +22,7 @@ use crate::electrolyte::{
     self, correct_to_25c, HydrometerRule, TEMPERATURE_MAX_C, TEMPERATURE_MIN_C,
 };
 use crate::profile::Profile;
-use crate::units::{parse_decimal, Celsius, SocPercent, SpecificGravity, Volts};
+use crate::units::{parse_decimal, Celsius, Shown, SocPercent, SpecificGravity, Volts};
 use std::io::Read;
 
 /// One known pair: a state of charge and the OCV per cell it gave, referred to 25 °C.
@@ -241,7 +241,10 @@ fn cells_or_base<'a>(
             let c = parse_decimal(raw, "a whole number of cells")
                 .map_err(|e| err("cells", e.to_string()))?;
             if c.fract() != 0.0 || !(1.0..=400.0).contains(&c) {
-                return Err(err("cells", format!("{c}: expected a whole number 1–400")));
+                return Err(err(
+                    "cells",
+                    format!("{}: expected a whole number 1–400", Shown(c)),
+                ));
             }
             Ok(c as u32)
         }
@@ -269,7 +272,8 @@ fn mean_sg(
             return Err(err(
                 "sg",
                 format!(
-                    "{v}: write specific gravity as a ratio ({:.3}), not in points",
+                    "{}: write specific gravity as a ratio ({:.3}), not in points",
+                    Shown(v),
                     v / 1000.0
                 ),
             ));
@@ -313,7 +317,10 @@ fn read_row<'a>(
     })?;
     let soc = number("soc_percent", soc_raw, "a state of charge in percent")?;
     if !(0.0..=100.0).contains(&soc) {
-        return Err(err("soc_percent", format!("{soc} % is outside 0–100 %")));
+        return Err(err(
+            "soc_percent",
+            format!("{} % is outside 0–100 %", Shown(soc)),
+        ));
     }
 
     let t = match (field(cols.temp_c), field(cols.temp_f)) {
@@ -347,7 +354,7 @@ fn read_row<'a>(
         let hint = if in_celsius && (TEMPERATURE_MIN_C..=TEMPERATURE_MAX_C).contains(&as_f) {
             format!(
                 " ({} °C is implausible; as °F it would be {as_f:.1} °C: put °F values in a temp_f column)",
-                t.0
+                Shown(t.0)
             )
         } else {
             String::new()
@@ -356,7 +363,7 @@ fn read_row<'a>(
             column,
             format!(
                 "{:.1} °C is outside {TEMPERATURE_MIN_C}–{TEMPERATURE_MAX_C} °C{hint}",
-                t.0
+                Shown(t.0)
             ),
         ));
     }
@@ -386,7 +393,9 @@ fn read_row<'a>(
                 return Err(err(
                     "volts",
                     format!(
-                        "{volts} V over {cells} cells is {v25:.3} V per cell at 25 °C, outside the {lo}–{hi} V a rested lead-acid cell reads; check the reading and the cells count"
+                        "{} V over {cells} cells is {:.3} V per cell at 25 °C, outside the {lo}–{hi} V a rested lead-acid cell reads; check the reading and the cells count",
+                        Shown(volts),
+                        Shown(v25)
                     ),
                 ));
             }

@@ -240,7 +240,7 @@ pub fn temperature_option(flag: &str, raw: &str) -> Result<Celsius, CliError> {
     };
     Err(CliError::usage(format!(
         "{flag}: temperature {} °C is outside the accepted range {TEMPERATURE_MIN_C} to {TEMPERATURE_MAX_C} °C{hint}",
-        (t.0 * 10.0).round() / 10.0
+        units::Shown((t.0 * 10.0).round() / 10.0)
     )))
 }
 
@@ -280,7 +280,8 @@ fn parse_volts(s: &str) -> Result<Volts, CliError> {
     let v = opt_usage("--volts", units::parse_decimal(s, "a voltage like 12.45"))?;
     if v.abs() > 1000.0 {
         return Err(CliError::usage(format!(
-            "--volts: {v} V is not a battery rest voltage (expected a value like 12.45; at most 1000 V)"
+            "--volts: {} V is not a battery rest voltage (expected a value like 12.45; at most 1000 V)",
+            units::Shown(v)
         )));
     }
     Ok(Volts(v))
@@ -297,8 +298,9 @@ fn parse_sg_list(s: &str) -> Result<Vec<SpecificGravity>, CliError> {
             )?;
             if !(1.0..=1.4).contains(&v) {
                 return Err(CliError::usage(format!(
-                    "--sg: reading {} is {v}: a lead-acid electrolyte reads 1.000–1.400",
-                    i + 1
+                    "--sg: reading {} is {}: a lead-acid electrolyte reads 1.000–1.400",
+                    i + 1,
+                    units::Shown(v)
                 )));
             }
             Ok(SpecificGravity(v))

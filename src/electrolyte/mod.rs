@@ -81,7 +81,7 @@ impl<T> Checked<T> {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ElectrolyteError {
     /// A temperature lay beyond the range any model here is used for.
-    #[error("temperature {celsius} °C is outside the accepted range {min} to {max} °C")]
+    #[error("temperature {} °C is outside the accepted range {min} to {max} °C", crate::units::Shown(*.celsius))]
     TemperatureOutOfRange {
         /// The temperature given.
         celsius: f64,
@@ -91,7 +91,7 @@ pub enum ElectrolyteError {
         max: f64,
     },
     /// A specific gravity lay outside 1.000..=1.400.
-    #[error("specific gravity {sg} is outside the accepted range 1.000 to 1.400 (SG 25/25 of battery acid)")]
+    #[error("specific gravity {} is outside the accepted range 1.000 to 1.400 (SG 25/25 of battery acid)", crate::units::Shown(*.sg))]
     SgOutOfRange {
         /// The specific gravity given.
         sg: f64,

@@ -54,7 +54,8 @@
 
 use crate::correct::rest::After;
 use crate::units::{
-    parse_decimal, parse_duration, Amperes, Celsius, Hours, Milliohms, SpecificGravity, Volts,
+    parse_decimal, parse_duration, Amperes, Celsius, Hours, Milliohms, Shown, SpecificGravity,
+    Volts,
 };
 use chrono::{NaiveDate, NaiveDateTime, NaiveTime};
 use serde::{Serialize, Serializer};
@@ -1177,13 +1178,13 @@ impl RowParser<'_> {
             problem(
                 problems,
                 c,
-                format_args!("{v} is implausible for °C: was it °F? (expected {lo} to {hi} °C; use a temp_f column for °F)"),
+                format_args!("{} is implausible for °C: was it °F? (expected {lo} to {hi} °C; use a temp_f column for °F)", Shown(v)),
             );
         } else {
             problem(
                 problems,
                 c,
-                format_args!("{v} °C is outside the plausible {lo} to {hi} °C"),
+                format_args!("{} °C is outside the plausible {lo} to {hi} °C", Shown(v)),
             );
         }
         None
@@ -1216,7 +1217,8 @@ impl RowParser<'_> {
                 problems,
                 c,
                 format_args!(
-                    "{v} mΩ is not a plausible ohmic value (expected above 0 and up to 100000 mΩ)"
+                    "{} mΩ is not a plausible ohmic value (expected above 0 and up to 100000 mΩ)",
+                    Shown(v)
                 ),
             );
             None
@@ -1364,7 +1366,8 @@ impl RowParser<'_> {
                     problems,
                     Col::Volts,
                     format_args!(
-                        "{v} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)"
+                        "{} V is absurd for a lead-acid unit (expected at most {MAX_ABS_VOLTS} V)",
+                        Shown(v)
                     ),
                 );
                 None
@@ -1386,12 +1389,12 @@ impl RowParser<'_> {
                     Ok(v) if (lo * 1000.0..=hi * 1000.0).contains(&v) => problem(
                         problems,
                         Col::Sg,
-                        format_args!("value {} is {v}: write specific gravity as a ratio ({:.3}), not in points", k + 1, v / 1000.0),
+                        format_args!("value {} is {}: write specific gravity as a ratio ({:.3}), not in points", k + 1, Shown(v), v / 1000.0),
                     ),
                     Ok(v) => problem(
                         problems,
                         Col::Sg,
-                        format_args!("value {} is {v}, outside the {lo:.3}–{hi:.3} of sulfuric-acid electrolyte", k + 1),
+                        format_args!("value {} is {}, outside the {lo:.3}–{hi:.3} of sulfuric-acid electrolyte", k + 1, Shown(v)),
                     ),
                     Err(e) => problem(problems, Col::Sg, format_args!("value {}: {e}", k + 1)),
                 }
@@ -1525,7 +1528,7 @@ impl RowParser<'_> {
                     problem(
                         problems,
                         Col::FloatCurrent,
-                        format_args!("{a} A is absurd for a float current"),
+                        format_args!("{} A is absurd for a float current", Shown(a)),
                     );
                     None
                 }
@@ -1544,7 +1547,7 @@ impl RowParser<'_> {
                     problem(
                         problems,
                         Col::Capacity,
-                        format_args!("{c} Ah is not a plausible rated capacity (expected {lo} to {hi} Ah, the unit's C-rate capacity in Ah, not mAh)"),
+                        format_args!("{} Ah is not a plausible rated capacity (expected {lo} to {hi} Ah, the unit's C-rate capacity in Ah, not mAh)", Shown(c)),
                     );
                     None
                 }

@@ -539,7 +539,10 @@ fn check_range(
         return Err(invalid(
             origin,
             key,
-            format!("{v} is outside the allowed range {lo}–{hi} {unit}"),
+            format!(
+                "{} is outside the allowed range {lo}–{hi} {unit}",
+                crate::units::Shown(v)
+            ),
         ));
     }
     Ok(())

@@ -456,7 +456,8 @@ pub fn parse_reading_arg(s: &str) -> Result<RestPoint, SettleError> {
     }
     if v > MAX_VOLTS {
         return Err(err(&format!(
-            "{v} V is not a battery rest voltage (at most {MAX_VOLTS} V)"
+            "{} V is not a battery rest voltage (at most {MAX_VOLTS} V)",
+            crate::units::Shown(v)
         )));
     }
     if elapsed.0 > MAX_ELAPSED_HOURS {
