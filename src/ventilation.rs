@@ -124,13 +124,13 @@ pub enum VentilationError {
         capacity_ah: f64,
     },
     /// The capacity is zero or negative.
-    #[error("ventilation: rated capacity {capacity_ah} Ah is not above 0; expected a positive capacity per cell in Ah (C10)")]
+    #[error("ventilation: rated capacity {} Ah is not above 0; expected a positive capacity per cell in Ah (C10)", crate::units::Shown(*.capacity_ah))]
     CapacityNotPositive {
         /// The capacity given, Ah.
         capacity_ah: f64,
     },
     /// The capacity is implausibly large.
-    #[error("ventilation: rated capacity {capacity_ah} Ah per cell is more than the {max_ah} Ah accepted; expected the capacity of one cell, not of the whole bank in another unit")]
+    #[error("ventilation: rated capacity {} Ah per cell is more than the {max_ah} Ah accepted; expected the capacity of one cell, not of the whole bank in another unit", crate::units::Shown(*.capacity_ah))]
     CapacityTooLarge {
         /// The capacity given, Ah.
         capacity_ah: f64,

@@ -110,6 +110,21 @@ const CASES: &[Case] = &[
         &["--sg: reading 1 is 1e300:"],
     ),
     case(
+        &[
+            "ventilation",
+            "--cells",
+            "24",
+            "--capacity-ah",
+            "1e300",
+            "--type",
+            "vented",
+            "--mode",
+            "float",
+        ],
+        2,
+        &["rated capacity 1e300 Ah per cell is more than the 50000 Ah accepted"],
+    ),
+    case(
         &["check", "--volts", "abc"],
         2,
         &["--volts", "'abc'", "a voltage like 12.45"],
