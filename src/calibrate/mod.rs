@@ -132,7 +132,7 @@ pub enum CalibrateError {
         file: String,
     },
     /// A point's state of charge lies outside 0–100 %.
-    #[error("{file}:{line}: state of charge {soc_percent} % is outside 0–100 %")]
+    #[error("{file}:{line}: state of charge {} % is outside 0–100 %", crate::units::Shown(*.soc_percent))]
     SocOutOfRange {
         /// Input name.
         file: String,

@@ -127,7 +127,7 @@ pub enum FloatError {
         quantity: &'static str,
     },
     /// A value outside what a float reading can be.
-    #[error("unit '{unit_id}': {quantity} {value} is not usable: expected {expected}")]
+    #[error("unit '{unit_id}': {quantity} {} is not usable: expected {expected}", crate::units::Shown(*.value))]
     OutOfRange {
         /// The unit (or the visit, for earlier currents).
         unit_id: String,

@@ -276,7 +276,7 @@ pub enum CurveError {
         index: usize,
     },
     /// State of charge outside 0–100.
-    #[error("point {index}: state of charge {soc_percent} is outside 0–100 %")]
+    #[error("point {index}: state of charge {} is outside 0–100 %", crate::units::Shown(*.soc_percent))]
     SocOutOfRange {
         /// Index of the point.
         index: usize,
@@ -284,7 +284,7 @@ pub enum CurveError {
         soc_percent: f64,
     },
     /// Not strictly increasing.
-    #[error("point {index}: {axis} must increase strictly from the previous point ({previous} then {value})")]
+    #[error("point {index}: {axis} must increase strictly from the previous point ({} then {})", crate::units::Shown(*.previous), crate::units::Shown(*.value))]
     NotIncreasing {
         /// Index of the point.
         index: usize,
