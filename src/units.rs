@@ -277,8 +277,7 @@ pub fn parse_temperature(raw: &str) -> Result<Celsius, UnitError> {
 /// A number from the input, for a message that refuses it: as written
 /// normally, unless it is so large or so small that it would run to hundreds
 /// of digits (`1e300` written out is 301), then in scientific notation to
-/// four significant digits. A
-/// precision (`{:.1}`) applies to the normal form.
+/// four significant digits. A precision (`{:.1}`) applies to the normal form.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Shown(pub f64);
 
@@ -422,6 +421,8 @@ pub fn parse_meter(raw: &str) -> Result<MeterAccuracy, UnitError> {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
 
     #[test]
     fn numbers_in_messages_are_short_however_large() {
@@ -439,9 +440,6 @@ mod tests {
         assert_eq!(format!("{:.1}", Shown(-5.04)), "-5.0");
         assert_eq!(format!("{:.1}", Shown(1e300)), "1e300");
     }
-
-    use super::*;
-    use approx::assert_relative_eq;
 
     #[test]
     fn temperatures_need_their_unit() {

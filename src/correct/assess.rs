@@ -593,8 +593,8 @@ fn core(
     // battery's: the safe assumption is a flat one (the highest freezing
     // point), since nothing here rules it out. (A shorted cell's voltage lies
     // below the curve, where the clamp already gives a flat battery.)
-    let says_nothing = basis == "volts"
-        && (flags.has(FlagCode::CheckConnection) || flags.has(FlagCode::WrongCellCount));
+    let says_nothing =
+        charge_unknown(basis, |c| flags.has(c)) && !flags.has(FlagCode::SuspectShortedCell);
     if may_freeze && says_nothing {
         if let Some(fp_flat) = profile.warmest_freezing_point() {
             flags.add(FlagCode::FreezeRisk, || format!(
@@ -726,12 +726,13 @@ fn assess_with(
         flags,
     } = core(profile, reading, setup, rules, words)?;
     let frozen = flags.has(FlagCode::FreezeRisk);
-    let flags = flags.list;
-    let mut reasons = Vec::new();
     // With the charge not known, the safe figure is a flat battery's (the
     // highest freezing point), not the one at the charge the curve clamped
     // to, which for a voltage above the curve is a full battery's.
-    let freezing = if charge_unknown(basis, |c| flags.iter().any(|f| f.code == c)) {
+    let unknown = charge_unknown(basis, |c| flags.has(c));
+    let flags = flags.list;
+    let mut reasons = Vec::new();
+    let freezing = if unknown {
         profile.warmest_freezing_point()
     } else {
         profile.freezing_point_at(SocPercent(soc)).ok()
