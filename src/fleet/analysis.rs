@@ -6,7 +6,7 @@ use super::ingest::{
     ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
     Rejected,
 };
-use super::shards::{add_to, shard_of, with_summary, SharedUnits, SHARDS};
+use super::shards::{add_lent_to, add_to, shard_of, with_summary, SharedUnits, SHARDS};
 use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
     assess_without_budget, estimate, Action, After, Reading, Reason, RestStatus, Setup,
@@ -319,10 +319,8 @@ const ROWS_PER_RUN_TO_FOLD: usize = 4;
 pub(super) struct FoldScratch {
     facts: Vec<Option<RowFacts>>,
     points: Vec<HistoryPoint>,
-    /// A chunk's rows by (turn, shard, place in the chunk), and the rows themselves
-    /// while they are taken out in that order.
+    /// A chunk's rows by (turn, shard, place in the chunk).
     order: Vec<(u32, u32, u32)>,
-    slots: Vec<Option<FleetRow>>,
 }
 
 impl ChunkFold {
@@ -379,7 +377,7 @@ impl ChunkFold {
                 rows.truncate(start);
             }
         } else {
-            let (order, slots) = (&mut scratch.order, &mut scratch.slots);
+            let order = &mut scratch.order;
             // Chunks go round the shards from different places, so that two
             // threads do not move from shard to shard in step, waiting for
             // each other at every one.
@@ -400,18 +398,17 @@ impl ChunkFold {
                     }),
             );
             order.sort_unstable();
-            slots.clear();
-            slots.extend(rows.drain(..).map(Some));
             for same_shard in order.chunk_by(|a, b| a.1 == b.1) {
                 let mut shard = units.lock(same_shard[0].1 as usize);
                 for &(_, _, i) in same_shard {
                     let i = i as usize;
-                    if let (Some(row), Some(Some(f))) = (slots[i].take(), facts.get(i)) {
-                        add_to(&mut shard, row, *f);
+                    if let (Some(row), Some(Some(f))) = (rows.get_mut(i), facts.get(i)) {
+                        add_lent_to(&mut shard, row, *f);
                     }
                 }
             }
-            slots.clear();
+            // What the rows hold now is what the summaries let go of.
+            rows.clear();
         }
         facts.clear();
         part
@@ -2188,5 +2185,70 @@ mod reject_tests {
                 kept[0].reason
             );
         }
+    }
+}
+
+#[cfg(test)]
+mod lend_tests {
+    use super::*;
+    use crate::fleet::generate::{generate, GenerateOptions};
+    use rand::seq::SliceRandom;
+    use rand::SeedableRng;
+
+    /// A lent row folds in as a moved one does, whatever the order the rows
+    /// come in, and is left as it was when the summary keeps the row it had.
+    #[test]
+    fn a_lent_row_folds_as_a_moved_one() {
+        let mut text = Vec::new();
+        let opts = GenerateOptions {
+            units: 30,
+            days: 200,
+            seed: 19,
+            readings_per_unit: Some(16),
+        };
+        generate(&opts, &mut text).unwrap();
+        let mut rows = Vec::new();
+        ingest(
+            "g.csv",
+            text.as_slice(),
+            &IngestOptions::default(),
+            &mut |r| rows.push(r),
+            &mut |r| panic!("{r}"),
+        )
+        .unwrap();
+        // Every row twice, so that equal points meet too.
+        let again = rows.clone();
+        rows.extend(again);
+        rows.shuffle(&mut rand::rngs::StdRng::seed_from_u64(3));
+        let store = ProfileStore::builtin().unwrap();
+        let settings = FleetSettings::default();
+        let (mut moved, mut lent) = (UnitMap::default(), UnitMap::default());
+        for row in &rows {
+            let mut row = row.clone();
+            let facts = FleetState::facts(&mut row, &store, &settings).unwrap();
+            add_to(&mut moved, row.clone(), facts);
+            let kept_before = lent
+                .get(&*row.unit_id)
+                .and_then(|s| s.latest_row.as_deref().cloned());
+            let offered = row.clone();
+            add_lent_to(&mut lent, &mut row, facts);
+            let kept_now = lent[&*row.unit_id].latest_row.as_deref().cloned();
+            match kept_before {
+                None => assert_eq!(kept_now.as_ref(), Some(&offered)),
+                Some(before) if kept_now.as_ref() == Some(&before) => {
+                    assert_eq!(row, offered)
+                }
+                // Left with parts of the row let go of, and its SG list's
+                // allocation: only for dropping.
+                Some(_) => assert_eq!(kept_now.as_ref(), Some(&offered)),
+            }
+        }
+        let listed = |m: &UnitMap| {
+            let mut v: Vec<String> = m.iter().map(|(k, s)| format!("{k}: {s:?}")).collect();
+            v.sort();
+            v
+        };
+        assert_eq!(lent.len(), 30);
+        assert_eq!(listed(&lent), listed(&moved));
     }
 }

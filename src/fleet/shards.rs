@@ -40,6 +40,17 @@ pub(super) fn add_to(units: &mut UnitMap, row: FleetRow, facts: RowFacts) {
     }
 }
 
+/// [`add_to`] of a lent row (see [`UnitSummary::add_lent`]).
+pub(super) fn add_lent_to(units: &mut UnitMap, row: &mut FleetRow, facts: RowFacts) {
+    match units.get_mut(&*row.unit_id) {
+        Some(s) => s.add_lent(row, facts),
+        None => {
+            let id = Arc::clone(&row.unit_id);
+            units.entry(id).or_default().add_lent(row, facts)
+        }
+    }
+}
+
 /// Per-unit summaries split into shards by unit id.
 pub(super) struct SharedUnits {
     shards: Vec<Mutex<UnitMap>>,

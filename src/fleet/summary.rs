@@ -217,8 +217,23 @@ pub fn minutes_since_epoch(t: NaiveDateTime) -> i64 {
 impl UnitSummary {
     /// Fold one reading in, with what was worked out for it.
     pub fn add(&mut self, row: FleetRow, facts: RowFacts) {
+        let mut row = row;
         let point = self.count(&row, &facts);
-        self.offer_latest(&point, row);
+        if self.offer_latest(&point, &mut row) {
+            self.latest_row = Some(Box::new(row));
+        }
+        self.insert_history(point);
+    }
+
+    /// [`UnitSummary::add`] of a lent row: if the summary keeps it, the row
+    /// is left holding what the summary let go of, for the caller to drop (a
+    /// copy is made only of a unit's first row). Rows folded one by one from
+    /// a chunk are not moved out of it on their way.
+    pub(crate) fn add_lent(&mut self, row: &mut FleetRow, facts: RowFacts) {
+        let point = self.count(row, &facts);
+        if self.offer_latest(&point, row) {
+            self.latest_row = Some(Box::new(row.clone()));
+        }
         self.insert_history(point);
     }
 
@@ -253,7 +268,10 @@ impl UnitSummary {
         }
         if let Some((p, r)) = best {
             let point = points[p].clone();
-            self.offer_latest(&point, rows.swap_remove(r));
+            let mut row = rows.swap_remove(r);
+            if self.offer_latest(&point, &mut row) {
+                self.latest_row = Some(Box::new(row));
+            }
         }
         rows.truncate(start);
         let want = (self.history.len() + points.len()).min(HISTORY_CAP + 1);
@@ -329,11 +347,15 @@ impl UnitSummary {
         self.trend_sum_ss += s * s;
     }
 
-    /// Keep `row` as the latest if it is greater than the one kept, by its
-    /// point's order and then by content. Call before inserting the point.
-    fn offer_latest(&mut self, point: &HistoryPoint, row: FleetRow) {
+    /// Keep `row`'s contents as the latest if it is greater than the row
+    /// kept, by its point's order and then by content: swapped in, so that
+    /// `row` is left holding what the kept row let go of (not the kept row
+    /// as it was: the SG list's values stay), for dropping. `true` when the
+    /// unit has no row kept yet: the caller puts `row` in. Call before
+    /// inserting the point.
+    fn offer_latest(&mut self, point: &HistoryPoint, row: &mut FleetRow) -> bool {
         let newer = match (self.history.last(), &self.latest_row) {
-            (Some(last), Some(kept)) => later((point, &row), (last, kept)),
+            (Some(last), Some(kept)) => later((point, row), (last, kept)),
             _ => true,
         };
         if newer {
@@ -348,19 +370,19 @@ impl UnitSummary {
                     // live id and list per unit scattered through every
                     // reading thread's pages held those pages: a file sorted
                     // by time peaked higher the more threads read it.
-                    let mut row = row;
                     // The same name: both rows are this unit's.
                     std::mem::swap(&mut row.unit_id, &mut kept.unit_id);
                     if kept.sg.capacity() >= row.sg.len() {
                         kept.sg.clear();
                         kept.sg.extend_from_slice(&row.sg);
-                        row.sg = std::mem::take(&mut kept.sg);
+                        std::mem::swap(&mut row.sg, &mut kept.sg);
                     }
-                    **kept = row;
+                    std::mem::swap(&mut **kept, row);
                 }
-                None => self.latest_row = Some(Box::new(row)),
+                None => return true,
             }
         }
+        false
     }
 
     fn insert_history(&mut self, p: HistoryPoint) {
@@ -401,7 +423,10 @@ impl UnitSummary {
         add_capacities(&mut self.capacities_ah, &other.capacities_ah);
         if let (Some(point), Some(row)) = (other.history.last(), other.latest_row) {
             let point = point.clone();
-            self.offer_latest(&point, *row);
+            let mut row = row;
+            if self.offer_latest(&point, &mut row) {
+                self.latest_row = Some(row);
+            }
         }
         for p in other.history {
             self.insert_history(p);
