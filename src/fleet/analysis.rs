@@ -6,7 +6,7 @@ use super::ingest::{
     ingest, ingest_parallel, FleetRow, IngestError, IngestOptions, IngestStats, Parallelism,
     Rejected,
 };
-use super::shards::{add_lent_to, add_to, shard_of, with_summary, SharedUnits, SHARDS};
+use super::shards::{add_lent_to, add_to, shard_of, warm, with_summary, SharedUnits, SHARDS};
 use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
 use crate::correct::{
     assess_without_budget, estimate, Action, After, Reading, Reason, RestStatus, Setup,
@@ -333,7 +333,9 @@ impl ChunkFold {
     /// run goes in at once, the runs from the last (so that the row a run
     /// keeps can be swapped out of the vector without moving the rows still
     /// to come). Otherwise (a file sorted by time) the rows go in one by one,
-    /// in the order of their units' shards, each shard locked once.
+    /// in the order of their units' shards, each shard locked once, and the
+    /// summaries a shard's rows go to are all read before the first is
+    /// folded (`warm`: their cache misses overlap).
     pub(super) fn of(
         rows: &mut Vec<FleetRow>,
         scratch: &mut FoldScratch,
@@ -400,6 +402,12 @@ impl ChunkFold {
             order.sort_unstable();
             for same_shard in order.chunk_by(|a, b| a.1 == b.1) {
                 let mut shard = units.lock(same_shard[0].1 as usize);
+                warm(
+                    &shard,
+                    same_shard
+                        .iter()
+                        .filter_map(|&(_, _, i)| rows.get(i as usize)),
+                );
                 for &(_, _, i) in same_shard {
                     let i = i as usize;
                     if let (Some(row), Some(Some(f))) = (rows.get_mut(i), facts.get(i)) {

@@ -385,6 +385,34 @@ impl UnitSummary {
         false
     }
 
+    /// Read the parts of the summary that folding a row in will touch, and
+    /// give back something made of them (for [`std::hint::black_box`]). A
+    /// chunk of a file sorted by time holds rows of as many units as it has
+    /// rows, each summary far from the last in memory; reading a shard's
+    /// group of them first, with no work between the reads, lets the
+    /// processor fetch them side by side rather than one fold at a time
+    /// (see DEVELOPERS.md § Fleet scale).
+    pub(crate) fn touch(&self) -> u64 {
+        let mut acc = self.readings ^ self.short_rest;
+        acc ^= (self.trend_sum_tt ^ self.trend_sum_ss ^ self.ageing_sum) as u64;
+        acc ^= self.coldest_milli_c.unwrap_or(0) as u64 ^ self.capacities_ah.len() as u64;
+        acc ^= self.first_at.map_or(0, |t| t.and_utc().timestamp() as u64);
+        if let Some(h) = self.history.last() {
+            acc ^= h.soc_milli_percent as u64;
+        }
+        // A point is 48 bytes: every other one is on every cache line.
+        for h in self.history.iter().step_by(2) {
+            acc ^= h.soc_milli_percent as u64;
+        }
+        if let Some(r) = &self.latest_row {
+            acc ^= r.unit_id.len() as u64 ^ r.sg.len() as u64 ^ r.source.line;
+            acc ^= r.capacity.map_or(0, |c| c.0.to_bits());
+            acc ^= r.sg.first().map_or(0, |g| g.0.to_bits());
+            acc ^= r.unit_id.as_bytes().first().map_or(0, |&b| b.into());
+        }
+        acc
+    }
+
     fn insert_history(&mut self, p: HistoryPoint) {
         let pos = self
             .history
