@@ -2215,15 +2215,7 @@ mod lend_tests {
             readings_per_unit: Some(16),
         };
         generate(&opts, &mut text).unwrap();
-        let mut rows = Vec::new();
-        ingest(
-            "g.csv",
-            text.as_slice(),
-            &IngestOptions::default(),
-            &mut |r| rows.push(r),
-            &mut |r| panic!("{r}"),
-        )
-        .unwrap();
+        let mut rows = crate::fleet::tests::rows_of(&text);
         // Every row twice, so that equal points meet too.
         let again = rows.clone();
         rows.extend(again);

@@ -8,7 +8,7 @@ use super::analysis::{
     UnitMap, PARALLEL_JUDGING_UNITS,
 };
 use super::generate::{generate, GenerateOptions};
-use super::ingest::{ingest, IngestOptions, IngestStats, Parallelism};
+use super::ingest::{ingest, FleetRow, IngestOptions, IngestStats, Parallelism};
 use super::shards::SharedUnits;
 use crate::profile::store::ProfileStore;
 use rand::seq::SliceRandom;
@@ -27,6 +27,20 @@ fn generated(units: u32, seed: u64) -> Vec<u8> {
     )
     .unwrap();
     out
+}
+
+/// The rows of a CSV text that is read without a reject.
+pub(super) fn rows_of(text: &[u8]) -> Vec<FleetRow> {
+    let mut rows = Vec::new();
+    ingest(
+        "f.csv",
+        text,
+        &IngestOptions::default(),
+        &mut |r| rows.push(r),
+        &mut |r| panic!("{r}"),
+    )
+    .unwrap();
+    rows
 }
 
 fn report_json(state: &FleetState, store: &ProfileStore) -> String {
@@ -157,18 +171,6 @@ fn shuffled(text: &[u8], seed: u64) -> Vec<u8> {
 fn a_chunk_is_folded_by_unit_only_when_its_rows_come_in_runs() {
     let store = ProfileStore::builtin().unwrap();
     let settings = FleetSettings::default();
-    let rows_of = |text: &[u8]| {
-        let mut rows = Vec::new();
-        ingest(
-            "f.csv",
-            text,
-            &IngestOptions::default(),
-            &mut |r| rows.push(r),
-            &mut |r| panic!("{r}"),
-        )
-        .unwrap();
-        rows
-    };
     let grouped = generated(40, 5);
     let mut scratch = FoldScratch::default();
     for (rows, by_unit) in [
@@ -421,15 +423,7 @@ fn a_newer_row_is_kept_in_the_allocations_of_the_row_it_replaces() {
                 P-1,flooded-stationary,2026-01-01 08:00,2.10,1.250,20,30,idle\n\
                 P-1,flooded-stationary,2026-02-01 08:00,2.09,1.240,20,30,idle\n\
                 P-1,flooded-stationary,2026-03-01 08:00,2.08,1.230,20,30,idle\n";
-    let mut rows = Vec::new();
-    ingest(
-        "t.csv",
-        text.as_bytes(),
-        &IngestOptions::default(),
-        &mut |r| rows.push(r),
-        &mut |r| panic!("{r:?}"),
-    )
-    .unwrap();
+    let mut rows = rows_of(text.as_bytes());
     assert_eq!(rows.len(), 3);
     // Each row with an id and an SG list of its own, as rows of a unit far
     // apart in a file come.
