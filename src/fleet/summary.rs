@@ -216,8 +216,7 @@ pub fn minutes_since_epoch(t: NaiveDateTime) -> i64 {
 
 impl UnitSummary {
     /// Fold one reading in, with what was worked out for it.
-    pub fn add(&mut self, row: FleetRow, facts: RowFacts) {
-        let mut row = row;
+    pub fn add(&mut self, mut row: FleetRow, facts: RowFacts) {
         let point = self.count(&row, &facts);
         if self.offer_latest(&point, &mut row) {
             self.latest_row = Some(Box::new(row));
@@ -400,7 +399,7 @@ impl UnitSummary {
         if let Some(h) = self.history.last() {
             acc ^= h.soc_milli_percent as u64;
         }
-        // A point is 48 bytes: every other one is on every cache line.
+        // A point is 48 bytes: every other one reaches every cache line.
         for h in self.history.iter().step_by(2) {
             acc ^= h.soc_milli_percent as u64;
         }
