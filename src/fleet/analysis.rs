@@ -67,6 +67,32 @@ pub struct FleetState {
 /// Rejected rows kept for the report (the count is always exact).
 pub const REJECTED_CAP: usize = 1000;
 
+/// A row's profile from the store. A reader shares one copy of each profile
+/// id between its rows, so the store (a sorted map of ids, compared as text)
+/// is asked once for each run of rows that hold the same copy.
+struct ProfileLookup<'s> {
+    store: &'s ProfileStore,
+    last: Option<(Arc<str>, Option<&'s Profile>)>,
+}
+
+impl<'s> ProfileLookup<'s> {
+    fn new(store: &'s ProfileStore) -> Self {
+        ProfileLookup { store, last: None }
+    }
+
+    /// The profile of that id, `None` when the store has none.
+    fn get(&mut self, id: &Arc<str>) -> Option<&'s Profile> {
+        match &self.last {
+            Some((last, p)) if Arc::ptr_eq(last, id) => *p,
+            _ => {
+                let p = self.store.get(id).ok();
+                self.last = Some((Arc::clone(id), p));
+                p
+            }
+        }
+    }
+}
+
 /// A row with what [`FleetState::prepare`] worked out for it.
 #[derive(Clone, Debug)]
 pub struct PreparedRow {
@@ -92,20 +118,31 @@ impl FleetState {
         store: &ProfileStore,
         settings: &FleetSettings,
     ) -> Result<PreparedRow, Rejected> {
+        FleetState::prepare_with(row, &mut ProfileLookup::new(store), settings)
+    }
+
+    /// [`FleetState::prepare`] with the profile found through `profiles`.
+    fn prepare_with(
+        row: FleetRow,
+        profiles: &mut ProfileLookup<'_>,
+        settings: &FleetSettings,
+    ) -> Result<PreparedRow, Rejected> {
         let mut row = row;
-        let facts = FleetState::facts(&mut row, store, settings)?;
+        let profile = profiles.get(&row.profile);
+        let facts = FleetState::facts(&mut row, profile, settings)?;
         Ok(PreparedRow { row, facts })
     }
 
     /// [`FleetState::prepare`] without moving the row (it is lent, and given
-    /// back as it was).
+    /// back as it was), for the row's profile as found in the store (`None`
+    /// when the store has no such profile).
     fn facts(
         row: &mut FleetRow,
-        store: &ProfileStore,
+        profile: Option<&Profile>,
         settings: &FleetSettings,
     ) -> Result<RowFacts, Rejected> {
-        let (soc, rested, short_rest) = match store.get(&row.profile) {
-            Ok(p) => {
+        let (soc, rested, short_rest) = match profile {
+            Some(p) => {
                 if let Some(reason) = unusable(p, row) {
                     return Err(Rejected {
                         file: row.source.file.to_string(),
@@ -115,7 +152,7 @@ impl FleetState {
                 }
                 row_soc(p, row, settings)
             }
-            Err(_) => (None, false, false),
+            None => (None, false, false),
         };
         let ageing = row
             .temperature
@@ -151,10 +188,11 @@ impl FleetState {
         // misses row by row, 6 million in batches).
         let mut rows: Vec<FleetRow> = Vec::with_capacity(BATCH_ROWS);
         let mut ready: Vec<Result<PreparedRow, Rejected>> = Vec::with_capacity(BATCH_ROWS);
+        let mut profiles = ProfileLookup::new(store);
         let mut flush = |rows: &mut Vec<FleetRow>, state: &mut FleetState| {
             ready.extend(
                 rows.drain(..)
-                    .map(|r| FleetState::prepare(r, store, settings)),
+                    .map(|r| FleetState::prepare_with(r, &mut profiles, settings)),
             );
             for p in ready.drain(..) {
                 match p {
@@ -353,8 +391,9 @@ impl ChunkFold {
         };
         let facts = &mut scratch.facts;
         facts.clear();
+        let mut profiles = ProfileLookup::new(store);
         for row in rows.iter_mut() {
-            match FleetState::facts(row, store, settings) {
+            match FleetState::facts(row, profiles.get(&row.profile), settings) {
                 Ok(f) => facts.push(Some(f)),
                 Err(r) => {
                     part.late.push(r);
@@ -2225,7 +2264,8 @@ mod lend_tests {
         let (mut moved, mut lent) = (UnitMap::default(), UnitMap::default());
         for row in &rows {
             let mut row = row.clone();
-            let facts = FleetState::facts(&mut row, &store, &settings).unwrap();
+            let profile = store.get(&row.profile).ok();
+            let facts = FleetState::facts(&mut row, profile, &settings).unwrap();
             add_to(&mut moved, row.clone(), facts);
             let kept_before = lent
                 .get(&*row.unit_id)
