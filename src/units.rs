@@ -298,6 +298,19 @@ impl fmt::Display for Shown {
     }
 }
 
+/// `value` as [`Shown`] with `decimals` places, or with up to three more (then
+/// in full) where fewer would make it read as `limit` or beyond: a charge of
+/// 74.6 % against a 75 % threshold is written `74.6`, not `75`, so that
+/// "below 75 %" never stands beside a number that reads as 75.
+pub fn shown_beside(value: f64, limit: f64, decimals: usize) -> String {
+    let side = value.partial_cmp(&limit);
+    let text = |d: usize| format!("{:.d$}", Shown(value));
+    (decimals..=decimals + 3)
+        .map(text)
+        .find(|t| t.parse::<f64>().ok().and_then(|x| x.partial_cmp(&limit)) == side)
+        .unwrap_or_else(|| Shown(value).to_string())
+}
+
 /// Parse a rest duration: `40m`, `6h`, `2d`, `1h30m`, `90min`, `1.5h`, or
 /// `unknown` (returns `None`). A bare number is refused.
 pub fn parse_duration(raw: &str) -> Result<Option<Hours>, UnitError> {
@@ -439,6 +452,20 @@ mod tests {
         assert!(shown(f64::MAX).len() < 30);
         assert_eq!(format!("{:.1}", Shown(-5.04)), "-5.0");
         assert_eq!(format!("{:.1}", Shown(1e300)), "1e300");
+    }
+
+    #[test]
+    fn a_number_beside_its_limit_never_reads_as_the_limit() {
+        // A display rule of this project (nothing outside it to check against).
+        assert_eq!(shown_beside(74.6, 75.0, 0), "74.6");
+        assert_eq!(shown_beside(74.96, 75.0, 0), "74.96");
+        assert_eq!(shown_beside(74.4, 75.0, 0), "74");
+        assert_eq!(shown_beside(19.99999, 20.0, 0), "19.99999");
+        assert_eq!(shown_beside(75.0, 75.0, 0), "75");
+        assert_eq!(shown_beside(75.4, 75.0, 0), "75.4");
+        assert_eq!(shown_beside(0.0504, 0.05, 3), "0.0504");
+        assert_eq!(shown_beside(0.051, 0.05, 3), "0.051");
+        assert_eq!(shown_beside(f64::NAN, 75.0, 0), "NaN");
     }
 
     #[test]

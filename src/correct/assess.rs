@@ -6,7 +6,9 @@ use crate::electrolyte::{self, ElectrolyteError, HydrometerRule};
 use crate::profile::Profile;
 use crate::rules::{RuleId, Rules};
 use crate::safety::{cautions_for_work, Caution, WorkKind};
-use crate::units::{Celsius, Hours, Kelvins, MeterAccuracy, SocPercent, SpecificGravity, Volts};
+use crate::units::{
+    shown_beside, Celsius, Hours, Kelvins, MeterAccuracy, SocPercent, SpecificGravity, Volts,
+};
 use serde::Serialize;
 
 /// One reading of one unit.
@@ -982,12 +984,14 @@ fn plausibility(
         let above_mv = (v25 - curve.volts_max().0) * 1000.0;
         if above_mv > allowance {
             flags.add(FlagCode::BeyondFull, || format!(
-                    "{above_mv:.0} mV per cell above the full-charge OCV (allowance {allowance} mV): surface charge or the wrong profile"
+                    "{} mV per cell above the full-charge OCV (allowance {allowance} mV): surface charge or the wrong profile",
+                    shown_beside(above_mv, allowance, 0)
                 ));
         } else if soc_high < rules.get(RuleId::DeepDischarge) {
             flags.add(FlagCode::DeepDischarge, || {
                 format!(
-                    "{soc:.0} % (at most {soc_high:.0} %), below {} %",
+                    "{soc:.0} % (at most {} %), below {} %",
+                    shown_beside(soc_high, rules.get(RuleId::DeepDischarge), 0),
                     rules.get(RuleId::DeepDischarge)
                 )
             });
@@ -1113,7 +1117,10 @@ fn sg_path(
     let spread_limit = rules.get(RuleId::SgSpread);
     if spread > spread_limit + 1e-9 {
         flags.add(FlagCode::SgSpread, || {
-            format!("cell-to-cell spread {spread:.3}, above {spread_limit:.3}")
+            format!(
+                "cell-to-cell spread {}, above {spread_limit:.3}",
+                shown_beside(spread, spread_limit, 3)
+            )
         });
     }
     let (lo, hi) = profile.sg_range();
@@ -1206,7 +1213,11 @@ fn decide(
             reasons.push(reason(
                 Action::RechargeNow,
                 "urgent-below",
-                format!("{soc:.0} % is below {} %", t.urgent_below_soc_percent.value),
+                format!(
+                    "{} % is below {} %",
+                    shown_beside(soc, t.urgent_below_soc_percent.value, 0),
+                    t.urgent_below_soc_percent.value
+                ),
                 &t.urgent_below_soc_percent.source,
             ));
         } else if soc < t.recharge_below_soc_percent.value {
@@ -1214,7 +1225,8 @@ fn decide(
                 Action::Recharge,
                 "recharge-below",
                 format!(
-                    "{soc:.0} % is below {} %",
+                    "{} % is below {} %",
+                    shown_beside(soc, t.recharge_below_soc_percent.value, 0),
                     t.recharge_below_soc_percent.value
                 ),
                 &t.recharge_below_soc_percent.source,

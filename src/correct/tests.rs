@@ -103,6 +103,27 @@ fn wrong_cell_count_and_deep_discharge() {
 }
 
 #[test]
+fn a_charge_just_under_a_threshold_is_not_written_as_the_threshold() {
+    // Display rule of this project: a reason saying "below 75 %" never shows a
+    // charge that reads as 75. The charge between 74.5 and 75 % is found on the
+    // curve, so the check holds whatever the curve's exact numbers.
+    let p = profile("flooded-automotive");
+    let threshold = p.spec.thresholds.recharge_below_soc_percent.value;
+    let a = (0..400)
+        .map(|i| run(&p, &rested(12.30 + f64::from(i) * 0.0005, 25.0)))
+        .find(|a| (threshold - 0.5..threshold).contains(&a.soc_percent))
+        .expect("a voltage with a charge just under the recharge threshold");
+    let reason = a
+        .reasons
+        .iter()
+        .find(|r| r.rule == "recharge-below")
+        .expect("the recharge reason");
+    let shown: f64 = reason.detail.split(' ').next().unwrap().parse().unwrap();
+    assert!(shown < threshold, "{}", reason.detail);
+    assert!((shown - a.soc_percent).abs() < 0.05, "{}", reason.detail);
+}
+
+#[test]
 fn short_rest_widens_on_the_biased_side() {
     let p = profile("flooded-automotive");
     let base = run(&p, &rested(12.45, 25.0));
