@@ -595,14 +595,34 @@ fn split_line(line: &[u8], delimiter: u8, bounds: &mut Vec<(usize, usize)>) {
     bounds.push((from, line.len()));
 }
 
+/// A CSV parser for `delimiter`, ready to start on any part of an input.
+/// Building one works out its state table (csv_core's `build`: about as much
+/// work as parsing 600 rows), so a reader of many chunks reuses one through
+/// [`primed`] (csv_core 0.1's `Clone` copies only part of the table, so a
+/// clone is not a working parser).
+fn primed_core(delimiter: u8) -> csv_core::Reader {
+    primed(csv_core::ReaderBuilder::new().delimiter(delimiter).build())
+}
+
+/// `core` reset to read a new input from its start, as [`primed_core`] makes it.
+fn primed(mut core: csv_core::Reader) -> csv_core::Reader {
+    core.reset();
+    // csv_core drops a byte-order mark at the start of the first input it
+    // is given, which here need not be the start of the input; this
+    // reader drops it itself. A line end is what a record start skips
+    // anyway, so it leaves the parser as it was, but no longer "unread".
+    let _ = core.read_record(b"\n", &mut [0], &mut [0]);
+    core
+}
+
 impl<R: Read> RecordReader<R> {
     fn new(inner: R, delimiter: u8) -> Self {
-        let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
-        // csv_core drops a byte-order mark at the start of the first input it
-        // is given, which here need not be the start of the input; this
-        // reader drops it itself. A line end is what a record start skips
-        // anyway, so it leaves the parser as it was, but no longer "unread".
-        let _ = core.read_record(b"\n", &mut [0], &mut [0]);
+        RecordReader::with_core(inner, delimiter, primed_core(delimiter))
+    }
+
+    /// [`RecordReader::new`] with a parser from [`primed_core`] or [`primed`]
+    /// for the same delimiter.
+    fn with_core(inner: R, delimiter: u8, core: csv_core::Reader) -> Self {
         RecordReader {
             inner,
             core,
@@ -623,6 +643,11 @@ impl<R: Read> RecordReader<R> {
             bounds: Vec::new(),
             held: Held::None,
         }
+    }
+
+    /// The CSV parser, for [`primed`] to make ready for another input.
+    fn into_core(self) -> csv_core::Reader {
+        self.core
     }
 
     /// The line after the last line end read (where an overlong line starts,
