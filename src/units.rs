@@ -298,6 +298,29 @@ impl fmt::Display for Shown {
     }
 }
 
+/// A number written to the nearest whole number exactly as `{:.0}` writes
+/// it (ties to even, `-0` for a negative that rounds to zero, tested against
+/// the standard formatter), without its exact-decimal conversion: several
+/// hundred instructions a number, and a fleet report writes three for every
+/// unit judged serviceable. No width or padding is applied.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Whole(pub f64);
+
+impl fmt::Display for Whole {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let r = self.0.round_ties_even();
+        if r.abs() < 9.0e15 {
+            if r == 0.0 && self.0.is_sign_negative() {
+                f.write_str("-0")
+            } else {
+                write!(f, "{}", r as i64)
+            }
+        } else {
+            write!(f, "{:.0}", self.0)
+        }
+    }
+}
+
 /// `value` as [`Shown`] with `decimals` places, or with up to three more (then
 /// in full) where fewer would make it read as `limit` or beyond: a charge of
 /// 74.6 % against a 75 % threshold is written `74.6`, not `75`, so that
@@ -452,6 +475,51 @@ mod tests {
         assert!(shown(f64::MAX).len() < 30);
         assert_eq!(format!("{:.1}", Shown(-5.04)), "-5.0");
         assert_eq!(format!("{:.1}", Shown(1e300)), "1e300");
+    }
+
+    #[test]
+    fn whole_numbers_are_written_as_the_standard_formatter_writes_them() {
+        // Reference: the standard library's `{:.0}`.
+        let mut values = vec![
+            0.0,
+            -0.0,
+            0.5,
+            1.5,
+            2.5,
+            -0.5,
+            -1.5,
+            -0.3,
+            0.49999999999999994,
+            74.5,
+            75.5,
+            99.99,
+            100.0,
+            1e15 + 0.5,
+            4503599627370495.5,
+            8.9e15,
+            9.1e15,
+            1e300,
+            -1e300,
+            f64::NAN,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::MIN_POSITIVE,
+            -f64::MIN_POSITIVE,
+        ];
+        let mut x = 0.123_f64;
+        for _ in 0..20_000 {
+            // A spread of magnitudes and signs, and the halves between them.
+            x = (x * 7.31 + 0.17) % 250.0;
+            values.extend([
+                x - 125.0,
+                (x * 2.0).round() / 2.0 - 60.0,
+                x * 1e6,
+                -x * 1e12,
+            ]);
+        }
+        for v in values {
+            assert_eq!(Whole(v).to_string(), format!("{v:.0}"), "{v:e}");
+        }
     }
 
     #[test]

@@ -7,7 +7,7 @@ use crate::profile::Profile;
 use crate::rules::{RuleId, Rules};
 use crate::safety::{cautions_for_work, Caution, WorkKind};
 use crate::units::{
-    shown_beside, Celsius, Hours, Kelvins, MeterAccuracy, SocPercent, SpecificGravity, Volts,
+    shown_beside, Celsius, Hours, Kelvins, MeterAccuracy, SocPercent, SpecificGravity, Volts, Whole,
 };
 use serde::Serialize;
 
@@ -1305,8 +1305,11 @@ fn decide(
             Action::Serviceable,
             "within-limits",
             format!(
-                "{soc:.0} % [{:.0}–{:.0}], at or above the recharge threshold {} %",
-                interval[0], interval[1], t.recharge_below_soc_percent.value
+                "{} % [{}–{}], at or above the recharge threshold {} %",
+                Whole(soc),
+                Whole(interval[0]),
+                Whole(interval[1]),
+                t.recharge_below_soc_percent.value
             ),
             &t.recharge_below_soc_percent.source,
         ));
