@@ -502,10 +502,9 @@ struct RecordReader<R> {
     done: bool,
     /// Whether the input has been read from at all.
     started: bool,
-    /// `\n` bytes before `pos`.
+    /// `\n` bytes before `pos` (with those in `buf[pos..filled]`, every one
+    /// read from the input).
     lines_before: u64,
-    /// `\n` bytes read from the input.
-    lines_read: u64,
     /// Bytes read since the last line end (`\n` or `\r`).
     run: u64,
     /// The current record when csv_core read it: its fields end to end, and
@@ -636,7 +635,6 @@ impl<R: Read> RecordReader<R> {
             done: false,
             started: false,
             lines_before: 0,
-            lines_read: 0,
             run: 0,
             fields: Vec::new(),
             ends: Vec::new(),
@@ -653,7 +651,9 @@ impl<R: Read> RecordReader<R> {
     /// The line after the last line end read (where an overlong line starts,
     /// or where the input failed).
     fn current_line(&self) -> u64 {
-        1 + self.lines_read
+        // Counted here, not as each block is read: only an error asks.
+        let unread = memchr::memchr_iter(b'\n', &self.buf[self.pos..self.filled]).count();
+        1 + self.lines_before + unread as u64
     }
 
     /// Read up to [`READ_BYTES`] more after the unread bytes, which move to
@@ -680,7 +680,6 @@ impl<R: Read> RecordReader<R> {
         };
         let chunk = &self.buf[self.filled..self.filled + n];
         self.eof = n == 0;
-        self.lines_read += memchr::memchr_iter(b'\n', chunk).count() as u64;
         match memchr::memrchr2(b'\n', b'\r', chunk) {
             Some(i) => self.run = (n - i - 1) as u64,
             None => self.run += n as u64,
@@ -2252,6 +2251,45 @@ mod tests {
         );
         // The message stays short: it does not carry the field.
         assert!(rej[0].reason.len() < 200);
+    }
+
+    #[test]
+    fn a_read_error_names_the_line_after_the_last_line_end_read() {
+        // Gives `text`, in reads of `step` bytes, then fails.
+        struct FailsAfter {
+            text: &'static [u8],
+            step: usize,
+        }
+        impl io::Read for FailsAfter {
+            fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+                if self.text.is_empty() {
+                    return Err(io::Error::other("cable pulled"));
+                }
+                let n = self.step.min(buf.len()).min(self.text.len());
+                buf[..n].copy_from_slice(&self.text[..n]);
+                self.text = &self.text[n..];
+                Ok(n)
+            }
+        }
+        // Four line ends read (one inside a quoted note) before the input
+        // fails: the failure is on line 5, whatever the size of the reads.
+        let text: &'static [u8] = b"unit_id,taken_at,volts,profile,note\n\
+            B1,2024-03-01 08:30,12.41,agm,\"two\nlines\"\n\
+            B2,2024-03-01 08:35,12.65,agm,x\nB3,2024-03-0";
+        for step in [1, 7, 4096] {
+            let err = ingest(
+                "in.csv",
+                FailsAfter { text, step },
+                &IngestOptions::default(),
+                &mut |_| {},
+                &mut |_| {},
+            )
+            .unwrap_err();
+            assert!(
+                matches!(err, IngestError::Io { line: 5, .. }),
+                "step {step}: {err}"
+            );
+        }
     }
 
     #[test]
