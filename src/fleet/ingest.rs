@@ -490,6 +490,10 @@ struct RecordReader<R> {
     /// fields.
     in_place: bool,
     buf: Vec<u8>,
+    /// Whether `buf` holds the whole input from the start (a chunk in
+    /// memory, [`RecordReader::over`]): reading then moves `filled` on
+    /// through it, in the same steps, without copying.
+    whole: bool,
     /// The unread bytes are `buf[pos..filled]`.
     pos: usize,
     filled: usize,
@@ -603,6 +607,20 @@ fn primed_core(delimiter: u8) -> csv_core::Reader {
     primed(csv_core::ReaderBuilder::new().delimiter(delimiter).build())
 }
 
+impl RecordReader<io::Empty> {
+    /// A reader of `bytes`, the whole input, read where it lies (records are
+    /// found, lines counted and overlong lines failed at the same points as
+    /// [`RecordReader::new`] over the same bytes). [`RecordReader::into_parts`]
+    /// gives the bytes back.
+    fn over(bytes: Vec<u8>, delimiter: u8, core: csv_core::Reader) -> Self {
+        RecordReader {
+            buf: bytes,
+            whole: true,
+            ..RecordReader::with_core(io::empty(), delimiter, core)
+        }
+    }
+}
+
 /// `core` reset to read a new input from its start, as [`primed_core`] makes it.
 fn primed(mut core: csv_core::Reader) -> csv_core::Reader {
     core.reset();
@@ -628,6 +646,7 @@ impl<R: Read> RecordReader<R> {
             delimiter,
             in_place: delimiter.is_ascii() && !matches!(delimiter, b'"' | b'\n' | b'\r'),
             buf: Vec::new(),
+            whole: false,
             pos: 0,
             filled: 0,
             scanned: 0,
@@ -643,9 +662,10 @@ impl<R: Read> RecordReader<R> {
         }
     }
 
-    /// The CSV parser, for [`primed`] to make ready for another input.
-    fn into_core(self) -> csv_core::Reader {
-        self.core
+    /// The CSV parser, for [`primed`] to make ready for another input, and
+    /// the buffer (for [`RecordReader::over`], the input it was given).
+    fn into_parts(self) -> (csv_core::Reader, Vec<u8>) {
+        (self.core, self.buf)
     }
 
     /// The line after the last line end read (where an overlong line starts,
@@ -657,8 +677,13 @@ impl<R: Read> RecordReader<R> {
     }
 
     /// Read up to [`READ_BYTES`] more after the unread bytes, which move to
-    /// the front of the buffer first.
+    /// the front of the buffer first (with the whole input in the buffer,
+    /// take up to that many more of it).
     fn fill(&mut self) -> Result<(), ReadError> {
+        if self.whole {
+            let n = (self.buf.len() - self.filled).min(READ_BYTES);
+            return self.took(n);
+        }
         if self.pos > 0 {
             self.buf.copy_within(self.pos..self.filled, 0);
             self.filled -= self.pos;
@@ -678,6 +703,11 @@ impl<R: Read> RecordReader<R> {
                 })
             }
         };
+        self.took(n)
+    }
+
+    /// Account for `n` bytes just read into `buf[filled..]`.
+    fn took(&mut self, n: usize) -> Result<(), ReadError> {
         let chunk = &self.buf[self.filled..self.filled + n];
         self.eof = n == 0;
         match memchr::memrchr2(b'\n', b'\r', chunk) {
@@ -2838,7 +2868,38 @@ mod tests {
                 let before = memchr::memchr_iter(b'\n', &data[..first]).count() as u64;
                 assert_eq!(line, 1 + before, "{data:?}");
             }
+            // The same bytes held whole in memory read as they do from a
+            // slice (a parser reused through `primed`).
+            let mut slice = RecordReader::new(&data[..], delimiter);
+            let core = primed(primed_core(delimiter));
+            let mut whole = RecordReader::over(data.clone(), delimiter, core);
+            loop {
+                let line = slice.advance().unwrap();
+                assert_eq!(whole.advance().unwrap(), line, "{data:?}");
+                if line.is_none() {
+                    break;
+                }
+                assert!(slice.record().iter().eq(whole.record().iter()), "{data:?}");
+            }
+            assert_eq!(whole.into_parts().1, data);
         }
+    }
+
+    #[test]
+    fn an_overlong_line_held_in_memory_fails_where_it_fails_from_a_slice() {
+        let mut data = b"a,b\nc,d\r\ne,\"f\ng\"\n".to_vec();
+        data.extend(std::iter::repeat_n(b'x', MAX_LINE_BYTES as usize + 10));
+        let mut slice = RecordReader::new(&data[..], b',');
+        let mut whole = RecordReader::over(data.clone(), b',', primed_core(b','));
+        for _ in 0..3 {
+            assert_eq!(slice.advance().unwrap(), whole.advance().unwrap());
+        }
+        let (Err(ReadError::TooLong { line: a }), Err(ReadError::TooLong { line: b })) =
+            (slice.advance(), whole.advance())
+        else {
+            panic!("both fail on the long line");
+        };
+        assert_eq!((a, b), (5, 5));
     }
 
     #[test]

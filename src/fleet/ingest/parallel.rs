@@ -370,7 +370,7 @@ fn work<T, W, F>(
             continue;
         }
         let (mut rejects, mut counts) = (Vec::new(), RecordCounts::default());
-        let mut rdr = RecordReader::with_core(&chunk.bytes[..], parser.delimiter, primed(core));
+        let mut rdr = RecordReader::over(chunk.bytes, parser.delimiter, primed(core));
         let result = read_records(
             name,
             &mut rdr,
@@ -380,20 +380,21 @@ fn work<T, W, F>(
             &mut |row| rows.push(row),
             &mut |r| rejects.push(r),
         );
-        core = rdr.into_core();
+        let (used, bytes) = rdr.into_parts();
+        core = used;
         let sent = match result {
             Ok(()) => out.send(Ok(Piece {
                 folded: fold(&mut rows, &mut scratch),
                 rejects,
                 counts,
-                bytes: chunk.bytes.len() as u64,
+                bytes: bytes.len() as u64,
             })),
             Err(e) => {
                 rows.clear();
                 out.send(Err((chunk.first_line, e)))
             }
         };
-        buffers.put(chunk.bytes);
+        buffers.put(bytes);
         if sent.is_err() {
             return;
         }
