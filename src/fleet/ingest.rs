@@ -607,6 +607,17 @@ fn primed_core(delimiter: u8) -> csv_core::Reader {
     primed(csv_core::ReaderBuilder::new().delimiter(delimiter).build())
 }
 
+/// `core` reset to read a new input from its start, as [`primed_core`] makes it.
+fn primed(mut core: csv_core::Reader) -> csv_core::Reader {
+    core.reset();
+    // csv_core drops a byte-order mark at the start of the first input it
+    // is given, which here need not be the start of the input; this
+    // reader drops it itself. A line end is what a record start skips
+    // anyway, so it leaves the parser as it was, but no longer "unread".
+    let _ = core.read_record(b"\n", &mut [0], &mut [0]);
+    core
+}
+
 impl RecordReader<io::Empty> {
     /// A reader of `bytes`, the whole input, read where it lies (records are
     /// found, lines counted and overlong lines failed at the same points as
@@ -619,17 +630,6 @@ impl RecordReader<io::Empty> {
             ..RecordReader::with_core(io::empty(), delimiter, core)
         }
     }
-}
-
-/// `core` reset to read a new input from its start, as [`primed_core`] makes it.
-fn primed(mut core: csv_core::Reader) -> csv_core::Reader {
-    core.reset();
-    // csv_core drops a byte-order mark at the start of the first input it
-    // is given, which here need not be the start of the input; this
-    // reader drops it itself. A line end is what a record start skips
-    // anyway, so it leaves the parser as it was, but no longer "unread".
-    let _ = core.read_record(b"\n", &mut [0], &mut [0]);
-    core
 }
 
 impl<R: Read> RecordReader<R> {
