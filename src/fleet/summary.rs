@@ -206,12 +206,26 @@ fn add_capacities(kept: &mut Vec<f64>, more: &[f64]) {
     kept.truncate(CAPACITIES_KEPT);
 }
 
-/// Minutes since 2000-01-01 00:00, the trend's time axis.
+/// Minutes since 2000-01-01 00:00, the trend's time axis: what
+/// `(t - epoch).num_minutes()` gives (rounded toward zero; tested), from the
+/// time's seconds count, without making the epoch and a duration for every
+/// rested reading.
 pub fn minutes_since_epoch(t: NaiveDateTime) -> i64 {
-    let epoch = chrono::NaiveDate::from_ymd_opt(2000, 1, 1)
-        .and_then(|d| d.and_hms_opt(0, 0, 0))
-        .unwrap_or_default();
-    (t - epoch).num_minutes()
+    /// 2000-01-01 00:00 in seconds since 1970-01-01 00:00.
+    const EPOCH_2000_SECONDS: i64 = 946_684_800;
+    let t = t.and_utc();
+    let nanos = t.timestamp_subsec_nanos();
+    if nanos >= 1_000_000_000 {
+        // A leap second: chrono's own arithmetic.
+        let epoch = chrono::DateTime::UNIX_EPOCH + chrono::TimeDelta::seconds(EPOCH_2000_SECONDS);
+        return (t - epoch).num_minutes();
+    }
+    let mut seconds = t.timestamp() - EPOCH_2000_SECONDS;
+    // Toward zero, as a duration's whole seconds are counted.
+    if seconds < 0 && nanos > 0 {
+        seconds += 1;
+    }
+    seconds / 60
 }
 
 impl UnitSummary {
@@ -518,6 +532,44 @@ impl UnitSummary {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn minutes_since_2000_are_chronos_duration_in_minutes() {
+        // Reference: chrono's own subtraction, as this function once did it.
+        use chrono::{NaiveDate, Timelike};
+        let epoch = NaiveDate::from_ymd_opt(2000, 1, 1)
+            .and_then(|d| d.and_hms_opt(0, 0, 0))
+            .unwrap();
+        let mut times = vec![
+            epoch,
+            epoch - chrono::TimeDelta::nanoseconds(1),
+            epoch - chrono::TimeDelta::seconds(60),
+            epoch - chrono::TimeDelta::milliseconds(60_500),
+            epoch + chrono::TimeDelta::milliseconds(59_999),
+            // A leap second (chrono holds it as 59 s and 1e9 ns or more).
+            NaiveDate::from_ymd_opt(2016, 12, 31)
+                .and_then(|d| d.and_hms_nano_opt(23, 59, 59, 1_500_000_000))
+                .unwrap(),
+            NaiveDate::from_ymd_opt(1969, 12, 31)
+                .and_then(|d| d.and_hms_nano_opt(23, 59, 59, 1_000_000_000))
+                .unwrap(),
+        ];
+        let mut x: i64 = 12_345;
+        for _ in 0..20_000 {
+            // From about 1830 to 2170, to the nanosecond.
+            x = (x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407)
+                >> 1)
+                % 10_000_000_000_000_000;
+            let nanos = (x % 1_000_000_000).unsigned_abs() as u32;
+            let t = epoch + chrono::TimeDelta::seconds(x % 10_000_000_000 - 5_000_000_000);
+            times.push(t.with_nanosecond(nanos).unwrap());
+        }
+        for t in times {
+            assert_eq!(minutes_since_epoch(t), (t - epoch).num_minutes(), "{t}");
+        }
+    }
 
     /// A summary holding only the trend sums of `points` (minutes, 0.001 %).
     fn trend_of(points: &[(i64, i64)]) -> UnitSummary {
