@@ -989,10 +989,11 @@ fn plausibility(
                 ));
         } else if soc_high < rules.get(RuleId::DeepDischarge) {
             flags.add(FlagCode::DeepDischarge, || {
+                let limit = rules.get(RuleId::DeepDischarge);
                 format!(
-                    "{soc:.0} % (at most {} %), below {} %",
-                    shown_beside(soc_high, rules.get(RuleId::DeepDischarge), 0),
-                    rules.get(RuleId::DeepDischarge)
+                    "{} % (at most {} %), below {limit} %",
+                    shown_beside(soc, limit, 0),
+                    shown_beside(soc_high, limit, 0),
                 )
             });
         }
