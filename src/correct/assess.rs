@@ -217,11 +217,17 @@ struct Flags {
     words: bool,
     /// Whether the uncertainty budget is written out too.
     budget_words: bool,
+    /// Whether the state of charge's interval is worked out (and with it
+    /// every flag that depends on it).
+    intervals: bool,
 }
 
 /// How much of an assessment is written in words.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 enum Words {
+    /// The state of charge only, without its interval, and of the flags
+    /// only those that discredit the voltage ([`estimate_charge`]).
+    Charge,
     /// Numbers and flag codes only ([`estimate`]).
     Numbers,
     /// Flags with their evidence and the reasons, no written budget
@@ -236,8 +242,9 @@ impl Flags {
         Flags {
             codes: FlagCodes::new(),
             list: Vec::new(),
-            words: words != Words::Numbers,
+            words: !matches!(words, Words::Numbers | Words::Charge),
             budget_words: words == Words::Full,
+            intervals: words != Words::Charge,
         }
     }
 
@@ -484,6 +491,13 @@ fn core(
     if n == 0 {
         return Err(CorrectError::NoCells);
     }
+    // Voltage and hydrometer are weighed by their intervals: with both, the
+    // charge needs them.
+    let words = if words == Words::Charge && !reading.sg.is_empty() {
+        Words::Numbers
+    } else {
+        words
+    };
     let mut flags = Flags::new(words);
 
     let (t, u_t) = match reading.temperature {
@@ -587,9 +601,11 @@ fn core(
     };
     let margin = rules.get(RuleId::FreezeMargin);
     // Warmer than any charge's freezing point and the margin: no look-up.
-    let may_freeze = profile
-        .warmest_freezing_point()
-        .map_or(true, |warmest| coldest.0 <= warmest.0 + margin);
+    // (The risk is judged at the interval's low end: none, no judgement.)
+    let may_freeze = flags.intervals
+        && profile
+            .warmest_freezing_point()
+            .map_or(true, |warmest| coldest.0 <= warmest.0 + margin);
     // A voltage no cell count explains says nothing of the charge, and its
     // interval is the clamped charge's, which above the curve is a full
     // battery's: the safe assumption is a flat one (the highest freezing
@@ -668,6 +684,38 @@ impl Estimate {
     pub fn voltage_discredited(&self) -> bool {
         FlagCode::DISCREDIT_VOLTAGE.into_iter().any(|c| self.has(c))
     }
+}
+
+/// A reading's state of charge without its interval: what a fleet analysis
+/// needs of the many readings whose intervals it does not show.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Charge {
+    /// State of charge: [`Estimate::soc_percent`], to the bit.
+    pub soc_percent: f64,
+    /// What it was read from, as [`Estimate::soc_basis`].
+    pub soc_basis: &'static str,
+    /// [`Estimate::voltage_discredited`].
+    pub voltage_discredited: bool,
+}
+
+/// [`estimate`]'s state of charge, without working out its interval (a
+/// reading with hydrometer values needs it, to weigh them against the
+/// voltage) or the flags that depend on it. The same reading gives the same
+/// error, the same charge and the same verdict on its voltage (tested).
+pub fn estimate_charge(
+    profile: &Profile,
+    reading: &Reading,
+    setup: &Setup,
+    rules: &Rules,
+) -> Result<Charge, CorrectError> {
+    let c = core(profile, reading, setup, rules, Words::Charge)?;
+    Ok(Charge {
+        soc_percent: c.soc,
+        soc_basis: c.basis,
+        voltage_discredited: FlagCode::DISCREDIT_VOLTAGE
+            .into_iter()
+            .any(|code| c.flags.has(code)),
+    })
 }
 
 /// [`assess`]'s numbers only; see [`Estimate`].
@@ -828,6 +876,19 @@ fn volts_path(
     let referred = to_25c(profile, v, n, t);
     let (v25, coef) = (referred.ocv25.0, referred.coefficient.0);
     let correction_mv = (v25 - v.0 / nf) * nf * 1000.0;
+    if !flags.intervals {
+        // The charge alone: the checks that can discredit the voltage do not
+        // look at the interval.
+        let soc = referred.lookup.soc.0;
+        plausibility(profile, v, v25, n, t, rest, soc, None, rules, flags);
+        return Ok(VoltsPart {
+            soc,
+            interval: [f64::NAN; 2],
+            ocv25_per_cell: v25,
+            correction_mv,
+            budget: None,
+        });
+    }
 
     // GUM budget on the per-cell OCV at 25 °C.
     let meter_half = setup.meter.half_width(v, setup.resolution).0 / nf;
@@ -911,7 +972,18 @@ fn volts_path(
         .soc
         .0;
 
-    plausibility(profile, v, v25, n, t, rest, lookup.soc.0, hi, rules, flags);
+    plausibility(
+        profile,
+        v,
+        v25,
+        n,
+        t,
+        rest,
+        lookup.soc.0,
+        Some(hi),
+        rules,
+        flags,
+    );
     if let Some((end, by)) = lookup.beyond {
         flags.add(FlagCode::BeyondCurve, || {
             format!(
@@ -960,7 +1032,7 @@ fn plausibility(
     t: Celsius,
     rest: &RestAssessment,
     soc: f64,
-    soc_high: f64,
+    soc_high: Option<f64>,
     rules: &Rules,
     flags: &mut Flags,
 ) {
@@ -987,7 +1059,7 @@ fn plausibility(
                     "{} mV per cell above the full-charge OCV (allowance {allowance} mV): surface charge or the wrong profile",
                     shown_beside(above_mv, allowance, 0)
                 ));
-        } else if soc_high < rules.get(RuleId::DeepDischarge) {
+        } else if let Some(soc_high) = soc_high.filter(|&h| h < rules.get(RuleId::DeepDischarge)) {
             flags.add(FlagCode::DeepDischarge, || {
                 let limit = rules.get(RuleId::DeepDischarge);
                 format!(

@@ -6,8 +6,8 @@ pub mod rest;
 pub mod uncertainty;
 
 pub use assess::{
-    assess, assess_without_budget, estimate, Action, Assessment, CorrectError, Estimate, Flag,
-    FlagCode, Reading, Reason, Setup,
+    assess, assess_without_budget, estimate, estimate_charge, Action, Assessment, Charge,
+    CorrectError, Estimate, Flag, FlagCode, Reading, Reason, Setup,
 };
 pub use rest::{After, RestAssessment, RestStatus};
 

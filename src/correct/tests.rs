@@ -328,7 +328,8 @@ fn gum_interval_agrees_with_monte_carlo() {
 
 #[test]
 fn the_numbers_only_estimate_is_the_assessments_numbers() {
-    // The fleet folds every reading in through `estimate`; its report explains
+    // The fleet folds every reading in through `estimate` (or, where it shows
+    // no intervals, `estimate_charge`); its report explains
     // the latest through `assess`. The two must never disagree.
     let store = ProfileStore::builtin().unwrap();
     let mut rng = rand::rngs::StdRng::seed_from_u64(11);
@@ -358,6 +359,24 @@ fn the_numbers_only_estimate_is_the_assessments_numbers() {
                 assess(p, &r, &Setup::default(), &Rules::default()),
                 estimate(p, &r, &Setup::default(), &Rules::default()),
             );
+            // And the charge alone is the estimate's, without the interval.
+            match (
+                &quick,
+                estimate_charge(p, &r, &Setup::default(), &Rules::default()),
+            ) {
+                (Ok(e), Ok(c)) => {
+                    assert_eq!(e.soc_percent.to_bits(), c.soc_percent.to_bits());
+                    assert_eq!(e.soc_basis, c.soc_basis);
+                    assert_eq!(
+                        e.voltage_discredited(),
+                        c.voltage_discredited,
+                        "{} {r:?}",
+                        p.id()
+                    );
+                }
+                (Err(e), Err(c)) => assert_eq!(e.to_string(), c.to_string()),
+                (e, c) => panic!("{}: {r:?}: estimate {e:?}, charge only {c:?}", p.id()),
+            }
             // The fleet's lean assessment is the full one without its written budget.
             let lean = assess_without_budget(p, &r, &Setup::default(), &Rules::default());
             match (&full, lean) {

@@ -7,9 +7,10 @@ use super::ingest::{
     Rejected,
 };
 use super::shards::{add_lent_to, add_to, shard_of, warm, with_summary, SharedUnits, SHARDS};
-use super::summary::{either, HistoryPoint, RowFacts, UnitSummary};
+use super::summary::{either, HistoryPoint, RowFacts, RowSoc, UnitSummary};
 use crate::correct::{
-    assess_without_budget, estimate, Action, After, Reading, Reason, RestStatus, Setup,
+    assess_without_budget, estimate, estimate_charge, Action, After, Reading, Reason, RestStatus,
+    Setup,
 };
 use crate::profile::store::ProfileStore;
 use crate::profile::Profile;
@@ -536,13 +537,14 @@ pub fn ageing_factor(t: Celsius, halving_c: f64) -> f64 {
     }
 }
 
-/// State of charge of a row (with its interval) for the history, whether it
-/// was rested, and whether its rest was too short.
+/// State of charge of a row for the history (with its interval, where a
+/// chart will show it), whether it was rested, and whether its rest was too
+/// short.
 fn row_soc(
     p: &Profile,
     row: &mut FleetRow,
     settings: &FleetSettings,
-) -> (Option<(f64, [f64; 2])>, bool, bool) {
+) -> (Option<RowSoc>, bool, bool) {
     if row.after == After::Float {
         return (None, false, false);
     }
@@ -555,13 +557,26 @@ fn row_soc(
         sg: std::mem::take(&mut row.sg),
         ..to_reading_without_sg(row)
     };
-    let estimate = estimate(p, &reading, &settings.setup, &settings.rules);
-    row.sg = reading.sg;
-    match estimate {
-        Ok(a) if !a.voltage_discredited() => {
-            (Some((a.soc_percent, a.soc_interval_percent)), rested, short)
+    let (setup, rules) = (&settings.setup, &settings.rules);
+    // The two inversions of the curve for an interval were a tenth of a
+    // reading's cost, for a chart only the HTML report draws.
+    let soc = if settings.without_chart_history {
+        match estimate_charge(p, &reading, setup, rules) {
+            Ok(c) if !c.voltage_discredited => Some((c.soc_percent, None)),
+            _ => None,
         }
-        _ => (None, false, short),
+    } else {
+        match estimate(p, &reading, setup, rules) {
+            Ok(a) if !a.voltage_discredited() => {
+                Some((a.soc_percent, Some(a.soc_interval_percent)))
+            }
+            _ => None,
+        }
+    };
+    row.sg = reading.sg;
+    match soc {
+        Some(soc) => (Some(soc), rested, short),
+        None => (None, false, short),
     }
 }
 

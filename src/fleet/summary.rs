@@ -42,7 +42,8 @@ pub struct HistoryPoint {
     pub rested: bool,
     /// State of charge, 0.001 % units, or [`NO_SOC`].
     soc_milli_percent: i32,
-    /// Its 95 % interval, 0.001 % units ([`NO_SOC`] when there is no state of charge).
+    /// Its 95 % interval, 0.001 % units ([`NO_SOC`] when there is no state
+    /// of charge, or its interval was not worked out).
     soc_interval_milli_percent: [i32; 2],
     /// The unit's voltage as read, or NaN.
     volts: f64,
@@ -59,10 +60,11 @@ impl HistoryPoint {
         (self.soc_milli_percent != NO_SOC).then(|| self.soc_milli_percent as f64 / SOC_SCALE)
     }
 
-    /// Its 95 % interval in percent.
+    /// Its 95 % interval in percent, where it was worked out.
     pub fn soc_interval_percent(&self) -> Option<[f64; 2]> {
         let [lo, hi] = self.soc_interval_milli_percent;
-        (self.soc_milli_percent != NO_SOC).then(|| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
+        (self.soc_milli_percent != NO_SOC && lo != NO_SOC)
+            .then(|| [lo as f64 / SOC_SCALE, hi as f64 / SOC_SCALE])
     }
 
     /// The unit's voltage as read.
@@ -79,14 +81,20 @@ impl HistoryPoint {
     /// readings is kept and chosen whatever order they arrive in (points
     /// that compare equal are identical).
     fn order(&self, other: &HistoryPoint) -> Ordering {
+        self.order_but_interval(other).then_with(|| {
+            self.soc_interval_milli_percent
+                .cmp(&other.soc_interval_milli_percent)
+        })
+    }
+
+    /// [`HistoryPoint::order`] but for the interval, which not every
+    /// analysis works out: the choice of a unit's latest row, which falls
+    /// back on the rows' content (the interval's source), must not depend on it.
+    fn order_but_interval(&self, other: &HistoryPoint) -> Ordering {
         self.taken_at
             .cmp(&other.taken_at)
             .then_with(|| self.volts.to_bits().cmp(&other.volts.to_bits()))
             .then_with(|| self.soc_milli_percent.cmp(&other.soc_milli_percent))
-            .then_with(|| {
-                self.soc_interval_milli_percent
-                    .cmp(&other.soc_interval_milli_percent)
-            })
             .then_with(|| self.after.cmp(&other.after))
             .then_with(|| self.rested.cmp(&other.rested))
             .then_with(|| {
@@ -124,22 +132,27 @@ fn row_order(a: &FleetRow, b: &FleetRow) -> Ordering {
 }
 
 /// Whether reading `a` is later than `b` by the order that chooses a unit's
-/// latest row: its point's order, then the rows' content.
+/// latest row: its point's order (but for the interval), then the rows' content.
 fn later(a: (&HistoryPoint, &FleetRow), b: (&HistoryPoint, &FleetRow)) -> bool {
-    match a.0.order(b.0) {
+    match a.0.order_but_interval(b.0) {
         Ordering::Greater => true,
         Ordering::Less => false,
         Ordering::Equal => row_order(a.1, b.1) == Ordering::Greater,
     }
 }
 
+/// A reading's state of charge, %, and its 95 % interval where it was
+/// worked out.
+pub type RowSoc = (f64, Option<[f64; 2]>);
+
 /// What folding a row in needs besides the row: its state of charge and the
 /// 95 % interval where it gives one, whether it was rested or too briefly
 /// rested, and the heat-ageing factor at its temperature.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RowFacts {
-    /// State of charge, %, and its 95 % interval.
-    pub soc: Option<(f64, [f64; 2])>,
+    /// State of charge, %, and its 95 % interval where it was worked out
+    /// (only a chart of the history shows it).
+    pub soc: Option<RowSoc>,
     /// Rested at least the profile's minimum (or idle).
     pub rested: bool,
     /// Taken with too little rest.
@@ -313,7 +326,9 @@ impl UnitSummary {
         // from NO_SOC); `as` saturates, and the estimate is clamped to 0–100 %.
         let quantise = |x: f64| (x.clamp(0.0, 100.0) * SOC_SCALE).round() as i32;
         let soc_q = soc.map(|(s, _)| quantise(s));
-        let interval_q = soc.map(|(_, [lo, hi])| [quantise(lo), quantise(hi)]);
+        let interval_q = soc
+            .and_then(|(_, i)| i)
+            .map(|[lo, hi]| [quantise(lo), quantise(hi)]);
         if let (Some(s), true) = (soc_q, rested) {
             self.add_trend_point(minutes_since_epoch(row.taken_at), s.into());
         }

@@ -387,6 +387,58 @@ fn judging_while_taking_the_state_apart_gives_the_same_report() {
 }
 
 #[test]
+fn a_report_without_chart_history_is_the_chart_report_less_its_history() {
+    // Without the charts' history no reading's interval is worked out
+    // (`estimate_charge`); nothing else may change. The last unit's two
+    // readings at the same time and voltage differ in that one has no
+    // temperature (25 °C is assumed, with a wider interval), so their points
+    // tie on all but the interval: the latest row must be the same one
+    // either way (by content, the one with a temperature).
+    let store = ProfileStore::builtin().unwrap();
+    let mut text = generated(250, 9);
+    text.extend_from_slice(
+        b"TIE-1,2026-01-05 08:00,agm,,,,6,12.71,,,30,charge,,,,,\n\
+          TIE-1,2026-01-05 08:00,agm,,,,6,12.71,,25.0,30,charge,,,,,\n",
+    );
+    let lean_settings = FleetSettings {
+        without_chart_history: true,
+        ..FleetSettings::default()
+    };
+    let ingest_with = |settings: &FleetSettings| {
+        let mut state = FleetState::default();
+        state
+            .ingest(
+                "t.csv",
+                &text[..],
+                &IngestOptions::default(),
+                &store,
+                settings,
+            )
+            .unwrap();
+        state
+    };
+    let mut want = finish(
+        &ingest_with(&FleetSettings::default()),
+        &store,
+        &FleetSettings::default(),
+    );
+    assert!(want.units.iter().any(|u| !u.history.is_empty()));
+    let tie = want.units.iter().find(|u| u.unit_id == "TIE-1").unwrap();
+    assert_eq!((tie.readings, tie.latest_temperature), (2, Some(25.0)));
+    assert!(!tie.flags.iter().any(|f| f == "no-temperature"));
+    for u in &mut want.units {
+        u.history.clear();
+    }
+    let got = finish(&ingest_with(&lean_settings), &store, &lean_settings);
+    assert_eq!(got, want);
+    assert_same(
+        &serde_json::to_string_pretty(&got).unwrap(),
+        &serde_json::to_string_pretty(&want).unwrap(),
+        "without chart history",
+    );
+}
+
+#[test]
 fn judging_on_several_threads_gives_the_same_report() {
     let store = ProfileStore::builtin().unwrap();
     // Enough units that the judging really is shared out.
