@@ -339,7 +339,12 @@ impl UnitSummary {
         }
         if let Some(a) = ageing {
             self.temp_n += 1;
-            self.ageing_sum += (a * AGEING_SCALE).round() as i128;
+            // Through an i64, which `as` saturates at 9.2e12 × (an absurd
+            // factor, from a tiny life-halving rule): the sum of as many of
+            // them as there are readings stays far inside an i128 (one
+            // saturated to i128::MAX overflowed it), and the conversion is a
+            // single instruction where one to i128 was a library call.
+            self.ageing_sum += i128::from((a * AGEING_SCALE).round() as i64);
         }
         if let Some(o) = row.ohmic {
             let cand = (row.taken_at, o.0.to_bits());
@@ -547,6 +552,29 @@ impl UnitSummary {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_absurd_ageing_factor_saturates_without_overflow() {
+        // A life-halving rule of 0.001 °C makes 2^(35/0.001) = inf at 60 °C.
+        let row = super::super::tests::rows_of(
+            b"unit_id,taken_at,volts,temp_c,profile\nU1,2026-01-05 08:00,12.7,60,agm\n",
+        )
+        .remove(0);
+        let mut s = UnitSummary::default();
+        for factor in [f64::INFINITY, f64::INFINITY, 1.0] {
+            let facts = RowFacts {
+                soc: None,
+                rested: false,
+                short_rest: false,
+                ageing: Some(factor),
+            };
+            s.add_lent(&mut row.clone(), facts);
+        }
+        let mean = s.ageing_factor().unwrap();
+        // (2 × i64::MAX + 1e6) / 1e6 / 3: huge, finite, and not wrapped negative.
+        let want = (2.0 * i64::MAX as f64 + 1e6) / 1e6 / 3.0;
+        assert!((mean - want).abs() <= 1e-9 * want, "{mean} vs {want}");
+    }
 
     #[test]
     fn minutes_since_2000_are_chronos_duration_in_minutes() {
