@@ -565,6 +565,31 @@ fn earlier_visits_sum_every_unit_so_a_low_first_unit_does_not_hide_a_rise() {
         notes.contains("2026-05-04 10:00 gave a float voltage for 3 of the string's 4 units"),
         "{notes}"
     );
+
+    // Two such visits (another, a fortnight later, with two blocks read) are
+    // one note, not one each: a string read a few blocks at a time would
+    // otherwise list every visit.
+    let mut two = partial.clone();
+    for b in ["A1", "A2"] {
+        two.push_str(&format!(
+            "{b},Test room,LV-1,,agm,2026-05-18 10:00,13.60,23.0,float,0.12,22.5\n"
+        ));
+    }
+    let v = fleet_of(&two);
+    let notes = string(&v, "Test room / LV-1")["notes"]
+        .as_array()
+        .unwrap()
+        .clone();
+    let visits: Vec<&str> = notes
+        .iter()
+        .filter_map(|n| n.as_str())
+        .filter(|n| n.contains("float visit"))
+        .collect();
+    assert_eq!(
+        visits,
+        ["2 float visits, 2026-05-04 10:00 to 2026-05-18 10:00, gave a float voltage for at most 3 of the string's 4 units: their string voltages are unknown, so their float currents are not compared"],
+        "{notes:?}"
+    );
 }
 
 #[test]

@@ -1990,17 +1990,14 @@ fn earlier_visits(
         }
     }
     let mut out = Vec::new();
-    let mut notes = Vec::new();
+    // Visits at which some unit went unread: (when, units read), in time order.
+    let mut partial: Vec<(chrono::NaiveDateTime, usize)> = Vec::new();
     for (at, (n, volts, mut currents)) in visits {
         if currents.is_empty() {
             continue;
         }
         if n < members.len() {
-            notes.push(format!(
-                "the float visit of {} gave a float voltage for {n} of the string's {} units: its string voltage is unknown, so its float current is not compared",
-                at.format("%Y-%m-%d %H:%M"),
-                members.len()
-            ));
+            partial.push((at, n));
             continue;
         }
         currents.sort_by(f64::total_cmp);
@@ -2010,7 +2007,36 @@ fn earlier_visits(
             crate::units::Volts(volts),
         ));
     }
-    (out, notes)
+    (
+        out,
+        partial_visits_note(&partial, members.len())
+            .into_iter()
+            .collect(),
+    )
+}
+
+/// The note on the float visits that left some of the string's `units`
+/// unread (`partial`: when, and how many were read, in time order): one
+/// note however many there were, so that a string read a few units at a
+/// time does not bury its other notes under one line per visit.
+fn partial_visits_note(partial: &[(chrono::NaiveDateTime, usize)], units: usize) -> Option<String> {
+    let minute = |at: &chrono::NaiveDateTime| at.format("%Y-%m-%d %H:%M").to_string();
+    match partial {
+        [] => None,
+        [(at, n)] => Some(format!(
+            "the float visit of {} gave a float voltage for {n} of the string's {units} units: its string voltage is unknown, so its float current is not compared",
+            minute(at)
+        )),
+        [(first, _), .., (last, _)] => {
+            let most = partial.iter().map(|(_, n)| *n).max().unwrap_or(0);
+            Some(format!(
+                "{} float visits, {} to {}, gave a float voltage for at most {most} of the string's {units} units: their string voltages are unknown, so their float currents are not compared",
+                partial.len(),
+                minute(first),
+                minute(last)
+            ))
+        }
+    }
 }
 
 #[cfg(test)]
