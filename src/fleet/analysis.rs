@@ -2020,20 +2020,19 @@ fn earlier_visits(
 /// note however many there were, so that a string read a few units at a
 /// time does not bury its other notes under one line per visit.
 fn partial_visits_note(partial: &[(chrono::NaiveDateTime, usize)], units: usize) -> Option<String> {
-    let minute = |at: &chrono::NaiveDateTime| at.format("%Y-%m-%d %H:%M").to_string();
     match partial {
         [] => None,
         [(at, n)] => Some(format!(
             "the float visit of {} gave a float voltage for {n} of the string's {units} units: its string voltage is unknown, so its float current is not compared",
-            minute(at)
+            minute_text(*at)
         )),
         [(first, _), .., (last, _)] => {
             let most = partial.iter().map(|(_, n)| *n).max().unwrap_or(0);
             Some(format!(
                 "{} float visits, {} to {}, gave a float voltage for at most {most} of the string's {units} units: their string voltages are unknown, so their float currents are not compared",
                 partial.len(),
-                minute(first),
-                minute(last)
+                minute_text(*first),
+                minute_text(*last)
             ))
         }
     }
