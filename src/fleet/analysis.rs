@@ -247,7 +247,7 @@ impl FleetState {
             reader,
             opts,
             how,
-            &|rows: &mut Vec<FleetRow>, scratch: &mut FoldScratch| {
+            &|rows: &mut [FleetRow], scratch: &mut FoldScratch| {
                 ChunkFold::of(rows, scratch, store, settings, &units)
             },
             &mut |part: ChunkFold| part.late.into_iter().for_each(|r| late.push(r)),
@@ -365,18 +365,17 @@ pub(super) struct FoldScratch {
 impl ChunkFold {
     /// Work out every row's facts (its state of charge, above all), then
     /// fold the rows into `units`: two passes, so that each step's code
-    /// stays in the instruction cache (see [`FleetState::ingest`]). `rows`
-    /// is left empty.
+    /// stays in the instruction cache (see [`FleetState::ingest`]). What
+    /// `rows` hold afterwards (partly what the summaries let go of) is only
+    /// for filling again.
     ///
     /// When the rows come in runs of one unit (a file grouped by unit), each
-    /// run goes in at once, the runs from the last (so that the row a run
-    /// keeps can be swapped out of the vector without moving the rows still
-    /// to come). Otherwise (a file sorted by time) the rows go in one by one,
+    /// run goes in at once. Otherwise (a file sorted by time) the rows go in one by one,
     /// in the order of their units' shards, each shard locked once, and the
     /// summaries a shard's rows go to are all read before the first is
     /// folded (`warm`: their cache misses overlap).
     pub(super) fn of(
-        rows: &mut Vec<FleetRow>,
+        rows: &mut [FleetRow],
         scratch: &mut FoldScratch,
         store: &ProfileStore,
         settings: &FleetSettings,
@@ -403,8 +402,8 @@ impl ChunkFold {
             }
         }
         if part.by_unit {
-            while let Some(last) = rows.last() {
-                let end = rows.len();
+            let mut end = rows.len();
+            while let Some(last) = end.checked_sub(1).and_then(|i| rows.get(i)) {
                 let start = rows[..end - 1]
                     .iter()
                     .rposition(|r| !same_id(&r.unit_id, &last.unit_id))
@@ -412,11 +411,14 @@ impl ChunkFold {
                 let id = Arc::clone(&last.unit_id);
                 let mut shard = units.lock(shard_of(&id));
                 with_summary(&mut shard, &id, |s| {
-                    s.add_run(rows, start, &facts[start..end], &mut scratch.points)
+                    s.add_run(
+                        &mut rows[start..end],
+                        &facts[start..end],
+                        &mut scratch.points,
+                    )
                 });
                 drop(shard);
-                // Whatever happened above, the run is done with.
-                rows.truncate(start);
+                end = start;
             }
         } else {
             let order = &mut scratch.order;
@@ -455,8 +457,6 @@ impl ChunkFold {
                     }
                 }
             }
-            // What the rows hold now is what the summaries let go of.
-            rows.clear();
         }
         facts.clear();
         part

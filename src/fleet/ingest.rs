@@ -884,33 +884,35 @@ impl<R: Read> RecordReader<R> {
 }
 
 /// Shares repeated names. Emptied when full so its size stays bounded.
+/// Names are lent (`&Arc<str>`), not handed out: a row slot that already
+/// holds the same allocation ([`set_name`]) takes no count on it, and a
+/// count is an atomic operation.
 #[derive(Clone, Default)]
 struct Interner {
     // ahash, keyed at random per process like std's SipHash (so a crafted
     // file cannot make lookups collide), at a fraction of its cost: every
     // record of a file sorted by time looks up a unit it did not just see.
     set: HashSet<Arc<str>, ahash::RandomState>,
-    last: Option<Arc<str>>,
+    /// The last name given (empty before the first).
+    last: Arc<str>,
 }
 
 impl Interner {
-    fn get(&mut self, s: &str) -> Arc<str> {
-        if let Some(last) = self.last_if(s) {
-            return last;
-        }
-        let a = match self.set.get(s) {
-            Some(a) => a.clone(),
-            None => {
-                if self.set.len() >= INTERN_CAP {
-                    self.set.clear();
+    fn get(&mut self, s: &str) -> &Arc<str> {
+        if *self.last != *s {
+            self.last = match self.set.get(s) {
+                Some(a) => a.clone(),
+                None => {
+                    if self.set.len() >= INTERN_CAP {
+                        self.set.clear();
+                    }
+                    let a: Arc<str> = Arc::from(s);
+                    self.set.insert(a.clone());
+                    a
                 }
-                let a: Arc<str> = Arc::from(s);
-                self.set.insert(a.clone());
-                a
-            }
-        };
-        self.last = Some(a.clone());
-        a
+            };
+        }
+        &self.last
     }
 
     /// The last name again if it is `s`, else a new one, without the set:
@@ -918,18 +920,28 @@ impl Interner {
     /// sorted by time has nearly every unit in the set, and looking each row
     /// up in it (a cache miss on a table of 50,000 names, another on the
     /// name) cost more than a new name does (8 % of a time-sorted run).
-    fn get_recent(&mut self, s: &str) -> Arc<str> {
-        if let Some(last) = self.last_if(s) {
-            return last;
+    fn get_recent(&mut self, s: &str) -> &Arc<str> {
+        if *self.last != *s {
+            self.last = Arc::from(s);
         }
-        let a: Arc<str> = Arc::from(s);
-        self.last = Some(a.clone());
-        a
+        &self.last
     }
+}
 
-    /// The last name given, if it is `s`.
-    fn last_if(&self, s: &str) -> Option<Arc<str>> {
-        self.last.as_ref().filter(|last| ***last == *s).cloned()
+/// Put `name` in `slot`, unless the slot holds it already (the same
+/// allocation): a recycled row mostly does, and then no count changes.
+fn set_name(slot: &mut Arc<str>, name: &Arc<str>) {
+    if !Arc::ptr_eq(slot, name) {
+        slot.clone_from(name);
+    }
+}
+
+/// [`set_name`] for an optional name.
+fn set_opt_name(slot: &mut Option<Arc<str>>, name: Option<&Arc<str>>) {
+    match (slot.as_mut(), name) {
+        (Some(s), Some(n)) => set_name(s, n),
+        (None, None) => {}
+        (_, n) => *slot = n.cloned(),
     }
 }
 
@@ -1145,8 +1157,8 @@ struct RowParser<'o> {
     opts: &'o IngestOptions,
     default_profile: Option<Arc<str>>,
     known: Option<HashSet<String>>,
-    /// The last profile found in `known`: the same name (the same shared
-    /// allocation, from the interner) needs no lookup again.
+    /// The last profile found in `known`: the same name needs no lookup
+    /// again.
     last_known: Option<Arc<str>>,
     /// [`IngestOptions::now`] as a reject shows it, written once: a file
     /// dated past it rejects every row, and chrono's formatter was a tenth
@@ -1183,6 +1195,99 @@ fn trim(s: &str) -> &str {
         (Some(&a), Some(&z)) if PLAIN_END[usize::from(a)] && PLAIN_END[usize::from(z)] => s,
         (None, _) => s,
         _ => s.trim(),
+    }
+}
+
+/// Where [`RowParser::parse`] puts accepted rows: it fills the row that
+/// `slot` lends (every field, so whatever the slot held before does not
+/// matter), then calls `accept`. A slot that is filled and not accepted
+/// holds a rejected record's partial row and is filled again by the next.
+pub(crate) trait RowSink {
+    /// The row the next record is parsed into.
+    fn slot(&mut self) -> &mut FleetRow;
+    /// The row in the slot was accepted.
+    fn accept(&mut self);
+}
+
+/// Each accepted row, as a row of its own, to a closure.
+struct EachRow<'a> {
+    sink: &'a mut dyn FnMut(FleetRow),
+    row: FleetRow,
+}
+
+impl RowSink for EachRow<'_> {
+    fn slot(&mut self) -> &mut FleetRow {
+        &mut self.row
+    }
+    fn accept(&mut self) {
+        (self.sink)(self.row.clone());
+    }
+}
+
+/// Rows kept from batch to batch and filled again: the names a slot
+/// already holds (mostly the same file, profile, site and string) are not
+/// counted again, and its hydrometer list and note are reused. Counting a
+/// name is an atomic operation, and a row has five of them.
+#[derive(Default)]
+pub(crate) struct RowBatch {
+    rows: Vec<FleetRow>,
+    /// How many of `rows` hold this batch's accepted rows.
+    len: usize,
+}
+
+impl RowBatch {
+    /// This batch's rows, for folding: what they hold afterwards is only
+    /// reused, never read.
+    pub(crate) fn rows_mut(&mut self) -> &mut [FleetRow] {
+        let len = self.len;
+        &mut self.rows[..len]
+    }
+
+    /// Start the next batch, keeping the rows to fill again.
+    pub(crate) fn reset(&mut self) {
+        self.len = 0;
+    }
+}
+
+impl RowSink for RowBatch {
+    fn slot(&mut self) -> &mut FleetRow {
+        if self.len == self.rows.len() {
+            self.rows.push(FleetRow::blank());
+        }
+        &mut self.rows[self.len]
+    }
+    fn accept(&mut self) {
+        self.len += 1;
+    }
+}
+
+impl FleetRow {
+    /// A row to parse into: every field empty or unknown.
+    fn blank() -> FleetRow {
+        FleetRow {
+            source: SourceRef {
+                file: Arc::from(""),
+                line: 0,
+            },
+            unit_id: Arc::from(""),
+            taken_at: NaiveDateTime::default(),
+            profile: Arc::from(""),
+            volts: None,
+            sg: Vec::new(),
+            site: None,
+            string: None,
+            position: None,
+            cells: None,
+            temperature: None,
+            rest: None,
+            after: After::Unknown,
+            ohmic: None,
+            baseline_ohmic: None,
+            note: None,
+            float_current: None,
+            ambient: None,
+            capacity: None,
+        }
     }
 }
 
@@ -1279,17 +1384,18 @@ impl RowParser<'_> {
         }
     }
 
-    /// Judge one record, whose whole text (validated) is `text`: hand the
-    /// row to `sink` and return `true`, or return `false` with the reasons
-    /// in `problems`. (The row is made in the call to `sink`, not returned,
-    /// which saves copying it, some 300 bytes, on its way.)
+    /// Judge one record, whose whole text (validated) is `text`: fill the
+    /// row in `out`'s slot and accept it and return `true`, or return
+    /// `false` with the reasons in `problems`. (The row is filled where it
+    /// lies, not returned, which saves copying it, some 300 bytes, on its
+    /// way.)
     fn parse(
         &mut self,
         rec: &Record<'_>,
         text: &str,
         line: u64,
         problems: &mut String,
-        sink: &mut dyn FnMut(FleetRow),
+        out: &mut dyn RowSink,
     ) -> bool {
         problems.clear();
         if rec.len() != self.width {
@@ -1373,7 +1479,8 @@ impl RowParser<'_> {
         };
 
         let raw_profile = f[Col::Profile as usize];
-        let profile = if raw_profile.is_empty() {
+        let lower;
+        let profile: Option<&str> = if raw_profile.is_empty() {
             if self.default_profile.is_none() {
                 problem(
                     problems,
@@ -1381,16 +1488,17 @@ impl RowParser<'_> {
                     format_args!("empty and no default profile was given"),
                 );
             }
-            self.default_profile.clone()
+            self.default_profile.as_deref()
         } else if raw_profile.bytes().any(|b| b.is_ascii_uppercase()) {
-            Some(self.profiles.get(&raw_profile.to_ascii_lowercase()))
+            lower = raw_profile.to_ascii_lowercase();
+            Some(&lower)
         } else {
-            Some(self.profiles.get(raw_profile))
+            Some(raw_profile)
         };
-        let seen = matches!((&profile, &self.last_known), (Some(p), Some(k)) if Arc::ptr_eq(p, k));
-        if let (Some(p), Some(known), false) = (&profile, &self.known, seen) {
-            if known.contains(&**p) {
-                self.last_known = Some(p.clone());
+        let seen = matches!((profile, &self.last_known), (Some(p), Some(k)) if **k == *p);
+        if let (Some(p), Some(known), false) = (profile, &self.known, seen) {
+            if known.contains(p) {
+                self.last_known = Some(Arc::from(p));
             } else {
                 let near = known
                     .iter()
@@ -1429,12 +1537,14 @@ impl RowParser<'_> {
         });
 
         let raw_sg = f[Col::Sg as usize];
-        // Sized once: the row keeps it, so growth would cost a reallocation.
-        let mut sg = match raw_sg {
-            "" => Vec::new(),
-            _ => Vec::with_capacity(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count()),
-        };
+        // Into the slot's own list, which a recycled slot has already.
+        let row = out.slot();
+        let sg = &mut row.sg;
+        sg.clear();
         if !raw_sg.is_empty() {
+            // Sized once: a summary may keep the row, so growth would cost
+            // a reallocation.
+            sg.reserve_exact(1 + memchr::memchr_iter(b';', raw_sg.as_bytes()).count());
             let (lo, hi) = SG_RANGE;
             for (k, part) in raw_sg.split(';').enumerate() {
                 let part = trim(part);
@@ -1613,35 +1723,41 @@ impl RowParser<'_> {
         let (Some(taken_at), Some(profile)) = (taken_at, profile) else {
             return false;
         };
-        let opt_name = |i: &mut Interner, s: &str| (!s.is_empty()).then(|| i.get(s));
         let (raw_site, raw_string) = (f[Col::Site as usize], f[Col::String as usize]);
-        let site = opt_name(&mut self.sites, raw_site);
-        let string = opt_name(&mut self.strings, raw_string);
         let note = f[Col::Note as usize];
-        sink(FleetRow {
-            source: SourceRef {
-                file: self.file.clone(),
-                line,
-            },
-            unit_id: self.units.get_recent(unit),
-            taken_at,
-            profile,
-            volts,
-            sg,
-            site,
-            string,
-            position,
-            cells,
-            temperature,
-            rest,
-            after,
-            ohmic,
-            baseline_ohmic,
-            note: (!note.is_empty()).then(|| note.to_string()),
-            float_current,
-            ambient,
-            capacity,
-        });
+        set_name(&mut row.source.file, &self.file);
+        row.source.line = line;
+        set_name(&mut row.unit_id, self.units.get_recent(unit));
+        row.taken_at = taken_at;
+        match &self.default_profile {
+            Some(d) if raw_profile.is_empty() => set_name(&mut row.profile, d),
+            _ => set_name(&mut row.profile, self.profiles.get(profile)),
+        }
+        row.volts = volts;
+        fn opt_name<'i>(i: &'i mut Interner, s: &str) -> Option<&'i Arc<str>> {
+            (!s.is_empty()).then(|| i.get(s))
+        }
+        set_opt_name(&mut row.site, opt_name(&mut self.sites, raw_site));
+        set_opt_name(&mut row.string, opt_name(&mut self.strings, raw_string));
+        row.position = position;
+        row.cells = cells;
+        row.temperature = temperature;
+        row.rest = rest;
+        row.after = after;
+        row.ohmic = ohmic;
+        row.baseline_ohmic = baseline_ohmic;
+        match (&mut row.note, note) {
+            (_, "") => row.note = None,
+            (Some(kept), _) => {
+                kept.clear();
+                kept.push_str(note);
+            }
+            (None, _) => row.note = Some(note.to_string()),
+        }
+        row.float_current = float_current;
+        row.ambient = ambient;
+        row.capacity = capacity;
+        out.accept();
         true
     }
 }
@@ -1727,6 +1843,21 @@ pub fn ingest<R: Read>(
     reader: R,
     opts: &IngestOptions,
     sink: &mut dyn FnMut(FleetRow),
+    reject: &mut dyn FnMut(Rejected),
+) -> Result<IngestStats, IngestError> {
+    let mut each = EachRow {
+        sink,
+        row: FleetRow::blank(),
+    };
+    ingest_to(name, reader, opts, &mut each, reject)
+}
+
+/// [`ingest`] into a [`RowSink`].
+fn ingest_to<R: Read>(
+    name: &str,
+    reader: R,
+    opts: &IngestOptions,
+    sink: &mut dyn RowSink,
     reject: &mut dyn FnMut(Rejected),
 ) -> Result<IngestStats, IngestError> {
     let mut reader = reader;
@@ -1964,7 +2095,7 @@ fn read_records<R: Read>(
     parser: &mut RowParser<'_>,
     line_offset: u64,
     counts: &mut RecordCounts,
-    sink: &mut dyn FnMut(FleetRow),
+    sink: &mut dyn RowSink,
     reject: &mut dyn FnMut(Rejected),
 ) -> Result<(), IngestError> {
     let mut problems = String::new();
@@ -2015,6 +2146,50 @@ fn read_records<R: Read>(
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    /// A row filled again holds the new record's fields and nothing of the
+    /// old one's: rows with a note, an SG list, a site and a string, then
+    /// rows without, and names that change, give through a [`RowBatch`]
+    /// what fresh rows give.
+    #[test]
+    fn a_recycled_row_is_a_fresh_row() {
+        let head = "unit_id,taken_at,profile,site,string,volts,sg,temp_c,rest_h,after,note\n";
+        let first = format!(
+            "{head}A1,2024-03-01 08:00,flooded-automotive,north,S1,12.6,1.265;1.270;1.262;1.268;1.266;1.264,20,24,idle,loose lid\n\
+             A2,2024-03-01 08:10,flooded-automotive,north,S2,12.5,1.250,-4,12,charge,\n\
+             A3,2024-03-01 08:20,agm,south,S2,12.7,,21,30,discharge,checked\n"
+        );
+        let second = format!(
+            "{head}B1,2024-03-02 09:00,agm,,,12.4,,,,,\n\
+             B2,2024-03-02 09:05,AGM,south,,,1.240,19,2,idle,new note\n\
+             B3,not a time,agm,south,S1,12.4,,,,,\n\
+             B4,2024-03-02 09:15,flooded-automotive,west,S9,12.1,1.2,30,1,idle,\n\
+             B5,2024-03-02 09:20,flooded-automotive,west,S9,12.2,,,,,\n"
+        );
+        let opts = IngestOptions::default();
+        let mut batch = RowBatch::default();
+        for text in [&first, &second] {
+            batch.reset();
+            let (mut fresh, mut rej) = (Vec::new(), 0);
+            ingest(
+                "in.csv",
+                text.as_bytes(),
+                &opts,
+                &mut |r| fresh.push(r),
+                &mut |_| rej += 1,
+            )
+            .unwrap();
+            let mut rej_batch = 0;
+            ingest_to("in.csv", text.as_bytes(), &opts, &mut batch, &mut |_| {
+                rej_batch += 1
+            })
+            .unwrap();
+            assert_eq!(rej, rej_batch);
+            assert_eq!(batch.rows_mut(), &fresh[..]);
+        }
+        // The second text left a rejected row in a slot and had more rows.
+        assert_eq!(batch.rows_mut().len(), 4);
+    }
 
     type Run = (Vec<FleetRow>, Vec<Rejected>, IngestStats);
 

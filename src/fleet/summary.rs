@@ -263,24 +263,24 @@ impl UnitSummary {
         self.insert_history(point);
     }
 
-    /// Fold in the rows `rows[start..]`, all of this unit, with their facts
-    /// (`None` for a row left out), and remove them from `rows`. The same as
-    /// adding them one by one, but only the latest of them is moved into the
-    /// summary (the others are dropped where they lie), and the history
-    /// grows once. `points` is scratch space.
+    /// Fold in `rows`, all of this unit, with their facts (`None` for a row
+    /// left out). The same as adding them one by one, but only the latest
+    /// of them is offered to the summary (it is swapped in, or copied for a
+    /// unit not seen before; the rows are left holding what the summary let
+    /// go of, or their own contents), and the history grows once. `points`
+    /// is scratch space.
     pub(crate) fn add_run(
         &mut self,
-        rows: &mut Vec<FleetRow>,
-        start: usize,
+        rows: &mut [FleetRow],
         facts: &[Option<RowFacts>],
         points: &mut Vec<HistoryPoint>,
     ) {
-        debug_assert_eq!(rows.len() - start, facts.len());
+        debug_assert_eq!(rows.len(), facts.len());
         points.clear();
         // The latest of the run by the order `offer_latest` uses: its point
         // (an index into `points`) and its row (an index into `rows`).
         let mut best: Option<(usize, usize)> = None;
-        for ((k, row), f) in rows.iter().enumerate().skip(start).zip(facts) {
+        for ((k, row), f) in rows.iter().enumerate().zip(facts) {
             let Some(f) = f else { continue };
             let point = self.count(row, f);
             let newer = match best {
@@ -294,12 +294,12 @@ impl UnitSummary {
         }
         if let Some((p, r)) = best {
             let point = points[p].clone();
-            let mut row = rows.swap_remove(r);
-            if self.offer_latest(&point, &mut row) {
-                self.latest_row = Some(Box::new(row));
+            if let Some(row) = rows.get_mut(r) {
+                if self.offer_latest(&point, row) {
+                    self.latest_row = Some(Box::new(row.clone()));
+                }
             }
         }
-        rows.truncate(start);
         let want = (self.history.len() + points.len()).min(HISTORY_CAP + 1);
         if want > self.history.capacity() {
             self.history.reserve_exact(want - self.history.len());

@@ -21,7 +21,7 @@
 use super::{
     parse_header, primed, primed_core, read_header, read_prefix, read_records, FleetRow,
     IngestError, IngestOptions, IngestStats, Quoting, RecordCounts, RecordReader, Rejected,
-    RowParser, MAX_LINE_BYTES,
+    RowBatch, RowParser, MAX_LINE_BYTES,
 };
 use crate::pool::Pool;
 use std::io::{self, Read};
@@ -105,8 +105,8 @@ fn count_line_ends(bytes: &[u8]) -> u64 {
 }
 
 /// Read one input on `how.threads` worker threads. Each chunk's accepted
-/// rows go to `fold` on a worker, which takes them out of the vector (its
-/// second argument is scratch space of the worker's own, kept between
+/// rows go to `fold` on a worker, which may leave anything in them (they are
+/// filled again for the next chunk; its second argument is scratch space of the worker's own, kept between
 /// chunks); what it returns goes to `sink` on the calling thread, rejected
 /// rows to `reject`, both in no particular order; `progress` is told the
 /// bytes read so far. The statistics and, for inputs that cannot be read to
@@ -127,7 +127,7 @@ where
     R: Read + Send,
     T: Send,
     W: Default,
-    F: Fn(&mut Vec<FleetRow>, &mut W) -> T + Sync,
+    F: Fn(&mut [FleetRow], &mut W) -> T + Sync,
 {
     let mut reader = reader;
     let prefix = read_prefix(name, &mut reader, opts)?;
@@ -147,6 +147,7 @@ where
                 rows.push(row);
                 if rows.len() >= ONE_THREAD_BATCH_ROWS {
                     sink(fold(&mut rows, &mut scratch));
+                    rows.clear();
                 }
             },
             reject,
@@ -350,13 +351,13 @@ fn work<T, W, F>(
     buffers: &Pool<u8>,
 ) where
     W: Default,
-    F: Fn(&mut Vec<FleetRow>, &mut W) -> T,
+    F: Fn(&mut [FleetRow], &mut W) -> T,
 {
     // A chunk's rows are all parsed before any is folded: parsing and the
     // fold (the state of charge) are each more code than the instruction
     // cache holds with the other, and row by row each evicted the other's;
     // phase by phase the misses fell fourfold (cachegrind, 200,000 rows).
-    let mut rows: Vec<FleetRow> = Vec::new();
+    let mut rows = RowBatch::default();
     let mut scratch = W::default();
     // One CSV parser for all the chunks, reset for each.
     let mut core = primed_core(parser.delimiter);
@@ -377,23 +378,21 @@ fn work<T, W, F>(
             parser,
             chunk.first_line - 1,
             &mut counts,
-            &mut |row| rows.push(row),
+            &mut rows,
             &mut |r| rejects.push(r),
         );
         let (used, bytes) = rdr.into_parts();
         core = used;
         let sent = match result {
             Ok(()) => out.send(Ok(Piece {
-                folded: fold(&mut rows, &mut scratch),
+                folded: fold(rows.rows_mut(), &mut scratch),
                 rejects,
                 counts,
                 bytes: bytes.len() as u64,
             })),
-            Err(e) => {
-                rows.clear();
-                out.send(Err((chunk.first_line, e)))
-            }
+            Err(e) => out.send(Err((chunk.first_line, e))),
         };
+        rows.reset();
         buffers.put(bytes);
         if sent.is_err() {
             return;
