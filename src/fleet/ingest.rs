@@ -1148,9 +1148,6 @@ pub fn parse_timestamp(text: &str) -> Option<NaiveDateTime> {
 struct RowParser<'o> {
     file: Arc<str>,
     idx: [Option<usize>; COLUMNS.len()],
-    /// The columns the file has, as (column, field index): `idx` without
-    /// the absent ones, for the per-record loop.
-    present: Vec<(usize, usize)>,
     width: usize,
     names: Vec<String>,
     delimiter: u8,
@@ -1303,13 +1300,13 @@ impl RowParser<'_> {
     /// The known columns' fields of `rec`, whose whole text is `text`:
     /// sliced once, so the checks below neither re-validate nor re-trim.
     fn fields<'r>(&self, rec: &Record<'_>, text: &'r str) -> Fields<'r> {
-        let mut f = [""; COLUMNS.len()];
-        for &(c, i) in &self.present {
-            if let (Some(slot), Some(&(a, b))) = (f.get_mut(c), rec.bounds.get(i)) {
-                *slot = text.get(a..b).map_or("", trim);
-            }
-        }
-        f
+        // Made in place from the column map: an array of empty fields
+        // filled afterwards was copied from a constant by a call to
+        // `memcpy` for every record (1 % of the samples).
+        std::array::from_fn(|c| match self.idx[c].and_then(|i| rec.bounds.get(i)) {
+            Some(&(a, b)) => text.get(a..b).map_or("", trim),
+            None => "",
+        })
     }
 
     fn number(&self, f: &Fields<'_>, c: Col, expected: &str, problems: &mut String) -> Option<f64> {
@@ -2060,11 +2057,6 @@ fn parse_header<'o>(
         file: file.clone(),
         width: names.len(),
         names,
-        present: idx
-            .iter()
-            .enumerate()
-            .filter_map(|(c, i)| i.map(|i| (c, i)))
-            .collect(),
         idx,
         delimiter,
         opts,
