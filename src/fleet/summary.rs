@@ -304,6 +304,23 @@ impl UnitSummary {
         if want > self.history.capacity() {
             self.history.reserve_exact(want - self.history.len());
         }
+        // Rows mostly come in time order: then the run's points follow the
+        // history, and inserting them one by one (each pushing the oldest
+        // out once the history is full) keeps the last HISTORY_CAP of the
+        // two end to end; they are put there at once.
+        let in_order = |a: &HistoryPoint, b: &HistoryPoint| a.order(b) != Ordering::Greater;
+        let follows = self
+            .history
+            .last()
+            .zip(points.first())
+            .map_or(true, |(h, p)| in_order(h, p));
+        if follows && points.windows(2).all(|w| in_order(&w[0], &w[1])) {
+            let new = points.len().min(HISTORY_CAP);
+            let old = self.history.len().min(HISTORY_CAP - new);
+            self.history.drain(..self.history.len() - old);
+            self.history.extend(points.drain(points.len() - new..));
+            points.clear();
+        }
         for p in points.drain(..) {
             self.insert_history(p);
         }
@@ -552,6 +569,56 @@ impl UnitSummary {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Runs folded at once (`add_run`, which puts points that come in order
+    /// at the history's end in one step) give the summary of the same rows
+    /// added one by one, whether the rows come in time order, with equal
+    /// times, or shuffled, and however they are cut into runs.
+    #[test]
+    fn a_run_folds_as_its_rows_one_by_one() {
+        use rand::{seq::SliceRandom, Rng, SeedableRng};
+        let mut text = String::from("unit_id,taken_at,volts,temp_c,rest_h,profile\n");
+        for k in 0..40u32 {
+            // Days 1..28 twice over for some, so that times repeat.
+            let day = 1 + (k * 7 / 10) % 28;
+            let volts = 12.0 + f64::from(k % 9) * 0.08;
+            text += &format!("U1,2026-02-{day:02} 08:{:02},{volts:.2},20,24,agm\n", k % 3);
+        }
+        let rows = super::super::tests::rows_of(text.as_bytes());
+        let facts = |k: usize| RowFacts {
+            soc: Some((40.0 + (k % 13) as f64 * 4.5, None)),
+            rested: k % 5 != 0,
+            short_rest: k % 5 == 0,
+            ageing: Some(1.0),
+        };
+        let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+        for trial in 0..30 {
+            let mut order: Vec<usize> = (0..rows.len()).collect();
+            match trial % 3 {
+                0 => {}
+                1 => order.sort_by_key(|&k| rows[k].taken_at),
+                _ => order.shuffle(&mut rng),
+            }
+            let mut one = UnitSummary::default();
+            for &k in &order {
+                one.add(rows[k].clone(), facts(k));
+            }
+            let mut runs = UnitSummary::default();
+            let mut points = Vec::new();
+            let mut rest = &order[..];
+            while !rest.is_empty() {
+                let n = rng.gen_range(1..=rest.len().min(25));
+                let (run, left) = rest.split_at(n);
+                let mut run_rows: Vec<FleetRow> = run.iter().map(|&k| rows[k].clone()).collect();
+                let run_facts: Vec<Option<RowFacts>> =
+                    run.iter().map(|&k| Some(facts(k))).collect();
+                runs.add_run(&mut run_rows, &run_facts, &mut points);
+                rest = left;
+            }
+            assert_eq!(runs.history.len(), HISTORY_CAP);
+            assert_eq!(format!("{runs:?}"), format!("{one:?}"), "trial {trial}");
+        }
+    }
 
     #[test]
     fn an_absurd_ageing_factor_saturates_without_overflow() {
