@@ -370,10 +370,10 @@ impl ChunkFold {
     /// for filling again.
     ///
     /// When the rows come in runs of one unit (a file grouped by unit), each
-    /// run goes in at once. Otherwise (a file sorted by time) the rows go in one by one,
-    /// in the order of their units' shards, each shard locked once, and the
-    /// summaries a shard's rows go to are all read before the first is
-    /// folded (`warm`: their cache misses overlap).
+    /// run goes in at once. Otherwise (a file sorted by time) the rows go in
+    /// one by one, in the order of their units' shards, each shard locked
+    /// once, and the summaries a shard's rows go to are all read before the
+    /// first is folded (`warm`: their cache misses overlap).
     pub(super) fn of(
         rows: &mut [FleetRow],
         scratch: &mut FoldScratch,

@@ -1156,7 +1156,7 @@ struct RowParser<'o> {
     known: Option<HashSet<String>>,
     /// The last profile found in `known`: the same name needs no lookup
     /// again.
-    last_known: Option<Arc<str>>,
+    last_known: Option<String>,
     /// [`IngestOptions::now`] as a reject shows it, written once: a file
     /// dated past it rejects every row, and chrono's formatter was a tenth
     /// of reading such a file.
@@ -1500,10 +1500,10 @@ impl RowParser<'_> {
         } else {
             Some(raw_profile)
         };
-        let seen = matches!((profile, &self.last_known), (Some(p), Some(k)) if **k == *p);
+        let seen = matches!((profile, &self.last_known), (Some(p), Some(k)) if k == p);
         if let (Some(p), Some(known), false) = (profile, &self.known, seen) {
             if known.contains(p) {
-                self.last_known = Some(Arc::from(p));
+                self.last_known = Some(p.to_string());
             } else {
                 let near = known
                     .iter()

@@ -106,12 +106,13 @@ fn count_line_ends(bytes: &[u8]) -> u64 {
 
 /// Read one input on `how.threads` worker threads. Each chunk's accepted
 /// rows go to `fold` on a worker, which may leave anything in them (they are
-/// filled again for the next chunk; its second argument is scratch space of the worker's own, kept between
-/// chunks); what it returns goes to `sink` on the calling thread, rejected
-/// rows to `reject`, both in no particular order; `progress` is told the
-/// bytes read so far. The statistics and, for inputs that cannot be read to
-/// the end, the error are those of [`super::ingest`] (rows before the error
-/// may differ: more of the input will have been read).
+/// filled again for the next chunk); its second argument is scratch space of
+/// the worker's own, kept between chunks. What it returns goes to `sink` on
+/// the calling thread, rejected rows to `reject`, both in no particular
+/// order; `progress` is told the bytes read so far. The statistics and, for
+/// inputs that cannot be read to the end, the error are those of
+/// [`super::ingest`] (rows before the error may differ: more of the input
+/// will have been read).
 #[allow(clippy::too_many_arguments)]
 pub fn ingest_parallel<R, T, W, F>(
     name: &str,
