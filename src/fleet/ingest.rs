@@ -1300,9 +1300,10 @@ impl RowParser<'_> {
     /// The known columns' fields of `rec`, whose whole text is `text`:
     /// sliced once, so the checks below neither re-validate nor re-trim.
     fn fields<'r>(&self, rec: &Record<'_>, text: &'r str) -> Fields<'r> {
-        // Made in place from the column map: an array of empty fields
-        // filled afterwards was copied from a constant by a call to
-        // `memcpy` for every record (1 % of the samples).
+        // Made from the column map in one pass: an array of empty fields
+        // filled afterwards through the list of present columns took 158
+        // more instructions a record (callgrind). The array is still copied
+        // out once, by a call to `memcpy` (64 instructions a record).
         std::array::from_fn(|c| match self.idx[c].and_then(|i| rec.bounds.get(i)) {
             Some(&(a, b)) => text.get(a..b).map_or("", trim),
             None => "",
