@@ -252,15 +252,21 @@ impl UnitSummary {
     }
 
     /// [`UnitSummary::add`] of a lent row: if the summary keeps it, the row
-    /// is left holding what the summary let go of, for the caller to drop (a
-    /// copy is made only of a unit's first row). Rows folded one by one from
-    /// a chunk are not moved out of it on their way.
+    /// is left holding what the summary let go of, for the caller to fill
+    /// again. Rows folded one by one from a chunk are not moved out of it on
+    /// their way.
     pub(crate) fn add_lent(&mut self, row: &mut FleetRow, facts: RowFacts) {
         let point = self.count(row, &facts);
-        if self.offer_latest(&point, row) {
+        self.offer_lent(&point, row);
+        self.insert_history(point);
+    }
+
+    /// [`UnitSummary::offer_latest`] of a lent row: a unit's first row kept
+    /// is a copy (every later one is swapped into the copy's allocations).
+    fn offer_lent(&mut self, point: &HistoryPoint, row: &mut FleetRow) {
+        if self.offer_latest(point, row) {
             self.latest_row = Some(Box::new(row.clone()));
         }
-        self.insert_history(point);
     }
 
     /// Fold in `rows`, all of this unit, with their facts (`None` for a row
@@ -295,9 +301,7 @@ impl UnitSummary {
         if let Some((p, r)) = best {
             let point = points[p].clone();
             if let Some(row) = rows.get_mut(r) {
-                if self.offer_latest(&point, row) {
-                    self.latest_row = Some(Box::new(row.clone()));
-                }
+                self.offer_lent(&point, row);
             }
         }
         let want = (self.history.len() + points.len()).min(HISTORY_CAP + 1);
@@ -319,10 +323,10 @@ impl UnitSummary {
             let old = self.history.len().min(HISTORY_CAP - new);
             self.history.drain(..self.history.len() - old);
             self.history.extend(points.drain(points.len() - new..));
-            points.clear();
-        }
-        for p in points.drain(..) {
-            self.insert_history(p);
+        } else {
+            for p in points.drain(..) {
+                self.insert_history(p);
+            }
         }
     }
 
